@@ -1,0 +1,143 @@
+"""The one place that writes: an output folder, written atomically.
+
+Everything is first written into a hidden temporary folder next to the target
+(same file system), then swapped in with renames. An interrupted run leaves any
+earlier output intact and no partial files; the inputs are never touched.
+"""
+from __future__ import annotations
+
+import io
+import json
+import os
+import shutil
+import tempfile
+from pathlib import Path
+
+import pandas as pd
+
+from .errors import InputError, Problem
+
+__all__ = ["OutputFolder", "check_output_target", "frame_to_csv_bytes", "render_figure"]
+
+FLOAT_FORMAT = "%.6g"
+
+
+def frame_to_csv_bytes(frame: pd.DataFrame) -> bytes:
+    """Deterministic CSV bytes: fixed float format, '\\n' line endings, UTF-8."""
+    buf = io.StringIO()
+    frame.to_csv(buf, index=False, float_format=FLOAT_FORMAT, lineterminator="\n")
+    return buf.getvalue().encode("utf-8")
+
+
+def check_output_target(out: Path) -> None:
+    """Fail early (exit code 2) when the output folder cannot be written."""
+    out = Path(out)
+    problems = []
+    if out.exists() and not out.is_dir():
+        problems.append(Problem(str(out), "a file where the output folder should be", "a folder (or a new path)",
+                                "choose another --out path or move the file away"))
+    if out.is_dir() and any(out.iterdir()) and not (out / "manifest.json").is_file():
+        problems.append(Problem(str(out), "a folder that already holds other files", "an empty folder, a new path, "
+                                "or an earlier analog output folder (it has manifest.json)",
+                                "choose a new --out path; analog replaces only its own earlier output"))
+    parent = out.parent if not out.exists() else out
+    while not parent.exists():
+        parent = parent.parent
+    if not os.access(parent, os.W_OK | os.X_OK):
+        problems.append(Problem(str(parent), "a folder this user cannot write to", "a writable folder",
+                                "choose an --out path you can write to, or change the folder's permissions"))
+    if problems:
+        raise InputError(problems)
+
+
+_FIXED_METADATA = {"png": {"Software": None}, "svg": {"Date": None, "Creator": None},
+                   "pdf": {"CreationDate": None, "ModDate": None, "Creator": None, "Producer": None}}
+
+
+def render_figure(fig, fmt: str, *, dpi: int = 300) -> bytes:
+    """Render a Figure to bytes in memory, with fixed metadata so reruns are byte-identical."""
+    import matplotlib
+
+    buf = io.BytesIO()
+    with matplotlib.rc_context({"svg.hashsalt": "analog"}):
+        fig.savefig(buf, format=fmt, dpi=dpi, bbox_inches="tight", metadata=_FIXED_METADATA.get(fmt, {}))
+    return buf.getvalue()
+
+
+class OutputFolder:
+    """Collects files in a temporary sibling folder; ``commit()`` swaps it into place.
+
+    Use as a context manager: on an exception (or KeyboardInterrupt) the temporary
+    folder is removed and the target is left as it was.
+    """
+
+    def __init__(self, target: str | os.PathLike):
+        self.target = Path(target).resolve()
+        check_output_target(self.target)
+        self.target.parent.mkdir(parents=True, exist_ok=True)
+        self.tmp = Path(tempfile.mkdtemp(prefix=f".{self.target.name}.partial-", dir=self.target.parent))
+        self.written: list[str] = []
+
+    # -- writing -------------------------------------------------------------------------------
+    def path(self, relative: str) -> Path:
+        p = self.tmp / relative
+        p.parent.mkdir(parents=True, exist_ok=True)
+        return p
+
+    def write_bytes(self, relative: str, data: bytes) -> None:
+        self.path(relative).write_bytes(data)
+        self.written.append(relative)
+
+    def write_text(self, relative: str, text: str) -> None:
+        self.write_bytes(relative, text.encode("utf-8"))
+
+    def write_table(self, relative: str, frame: pd.DataFrame) -> None:
+        self.write_bytes(relative, frame_to_csv_bytes(frame))
+
+    def write_json(self, relative: str, obj) -> None:
+        self.write_text(relative, json.dumps(obj, indent=2, sort_keys=True, ensure_ascii=False, default=str) + "\n")
+
+    def write_figure(self, stem: str, fig, *, formats=("png", "svg"), dpi: int = 300,
+                     folder: str = "figures") -> dict[str, bytes]:
+        """Save a matplotlib Figure in each format; returns the bytes written per format."""
+        import matplotlib.pyplot as plt
+
+        out = {}
+        for fmt in formats:
+            data = render_figure(fig, fmt, dpi=dpi)
+            self.write_bytes(f"{folder}/{stem}.{fmt}", data)
+            out[fmt] = data
+        plt.close(fig)
+        return out
+
+    def write_layer(self, relative: str, gdf, *, layer: str | None = None) -> None:
+        gdf.to_file(self.path(relative), driver="GPKG", layer=layer or Path(relative).stem, engine="pyogrio")
+        self.written.append(relative)
+
+    # -- committing ----------------------------------------------------------------------------
+    def commit(self) -> Path:
+        """Swap the finished folder into place; an earlier output folder is replaced whole."""
+        backup = None
+        if self.target.exists():
+            backup = self.target.with_name(f".{self.target.name}.previous-{os.getpid()}")
+            os.rename(self.target, backup)
+        try:
+            os.rename(self.tmp, self.target)
+        except BaseException:
+            if backup is not None:
+                os.rename(backup, self.target)
+            raise
+        if backup is not None:
+            shutil.rmtree(backup, ignore_errors=True)
+        return self.target
+
+    def discard(self) -> None:
+        shutil.rmtree(self.tmp, ignore_errors=True)
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, exc_type, exc, tb):
+        if exc_type is not None:
+            self.discard()
+        return False
