@@ -1,0 +1,85 @@
+"""The output writer: atomic, deterministic, never clobbers foreign folders."""
+import os
+
+import matplotlib.pyplot as plt
+import pandas as pd
+import pytest
+
+from analog.errors import InputError
+from analog.output import OutputFolder, frame_to_csv_bytes, render_figure
+
+
+def test_commit_replaces_earlier_output_whole(tmp_path):
+    out = tmp_path / "out"
+    with OutputFolder(out) as f:
+        f.write_text("a.txt", "first")
+        f.write_json("manifest.json", {"x": 1})
+        f.commit()
+    with OutputFolder(out) as f:
+        f.write_text("b.txt", "second")
+        f.write_json("manifest.json", {"x": 2})
+        f.commit()
+    assert sorted(p.name for p in out.iterdir()) == ["b.txt", "manifest.json"]
+    # no temporary or backup folders left beside the target
+    assert [p.name for p in tmp_path.iterdir()] == ["out"]
+
+
+def test_failure_midway_leaves_earlier_output_and_no_partial_files(tmp_path):
+    out = tmp_path / "out"
+    with OutputFolder(out) as f:
+        f.write_text("keep.txt", "earlier")
+        f.write_json("manifest.json", {})
+        f.commit()
+    with pytest.raises(KeyboardInterrupt):
+        with OutputFolder(out) as f:
+            f.write_text("half.txt", "partial")
+            raise KeyboardInterrupt
+    assert (out / "keep.txt").read_text() == "earlier"
+    assert not (out / "half.txt").exists()
+    assert [p.name for p in tmp_path.iterdir()] == ["out"]
+
+
+def test_refuses_folder_with_foreign_files(tmp_path):
+    (tmp_path / "notes.docx").write_text("precious")
+    with pytest.raises(InputError, match="already holds other files"):
+        OutputFolder(tmp_path)
+    assert (tmp_path / "notes.docx").read_text() == "precious"
+
+
+def test_refuses_file_as_output_folder(tmp_path):
+    target = tmp_path / "file.txt"
+    target.write_text("x")
+    with pytest.raises(InputError, match="a file where the output folder should be"):
+        OutputFolder(target)
+
+
+@pytest.mark.skipif(os.geteuid() == 0, reason="root can write to read-only folders")
+def test_refuses_read_only_parent(tmp_path):
+    ro = tmp_path / "ro"
+    ro.mkdir()
+    ro.chmod(0o500)
+    try:
+        with pytest.raises(InputError, match="cannot write"):
+            OutputFolder(ro / "out")
+    finally:
+        ro.chmod(0o700)
+
+
+def test_csv_bytes_are_deterministic_and_unix_newlines():
+    frame = pd.DataFrame({"a": [0.1 + 0.2, 1 / 3], "b": ["x", "y"]})
+    data = frame_to_csv_bytes(frame)
+    assert data == frame_to_csv_bytes(frame.copy())
+    assert b"\r\n" not in data
+    assert data.splitlines()[1] == b"0.3,x"  # %.6g rounding of 0.30000000000000004
+
+
+@pytest.mark.parametrize("fmt", ["png", "svg", "pdf"])
+def test_figure_rendering_is_byte_identical(fmt):
+    def draw():
+        fig, ax = plt.subplots()
+        ax.plot([0, 1, 2], [1, 0, 1])
+        return fig
+
+    a, b = draw(), draw()
+    assert render_figure(a, fmt, dpi=50) == render_figure(b, fmt, dpi=50)
+    plt.close("all")
