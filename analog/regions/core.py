@@ -1,0 +1,191 @@
+"""Region-by-region indices of the combined ranking."""
+from __future__ import annotations
+
+import warnings
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from ..errors import AnalogWarning
+from ..figures.style import TIER_NAMES
+from .diversity import branch_incidence, expected_diversity_loss
+from .params import PARAMS, RegionParams
+from .result import LINE_COLUMNS, PRESENCE_COLUMNS, SUMMARY_COLUMNS, RegionResult
+from .spatial import assign_points, equal_area_crs, region_areas_km2
+
+__all__ = ["assess_regions"]
+
+_LINES = {"combined": ("combined_p", "tier", "draws"),
+          "analog": ("analog_p", "analog_tier", "analog_draws"),
+          "trajectory": ("trajectory_p", "trajectory_tier", "trajectory_draws")}
+
+
+def assess_regions(study, combined_result, params: RegionParams | None = None, *,
+                   rng: np.random.Generator | None = None,
+                   progress: Callable[[str, int, int], None] | None = None) -> RegionResult:
+    """Assign modern occurrences to regions and summarise each region's expected losses.
+
+    Parameters
+    ----------
+    study : analog.study.Study
+        Uses ``modern_occurrences``, ``regions`` and ``taxa`` (for the rank tree).
+    combined_result : analog.combine.CombinedResult
+        The merged ranking with its draws.
+    params : RegionParams, optional
+        The [regions] options; defaults when omitted.
+    rng : numpy.random.Generator, optional
+        Accepted for the common stage signature; this stage draws no random numbers.
+    progress : callable, optional
+        ``progress(label, done, total)``.
+
+    Returns
+    -------
+    RegionResult
+
+    Notes
+    -----
+    *Assignment*: see :func:`analog.regions.spatial.assign_points` (deduplicated coordinates,
+    ``intersects`` predicate, points on shared edges to the lowest region_id).
+    *Presence*: a taxon is present in a region with at least ``min_records`` records there.
+    *Indices* use the assessed taxa present: ``expected_losses`` is the sum of their probabilities
+    (the expected number lost if losses are independent), its interval the central ``interval``
+    percentiles of the same sum over the aligned draws; ``mean_combined_p`` = expected_losses /
+    n_taxa (the expected share lost); ``n_top_tier`` counts taxa at or above ``top_tier``.
+    The ``analog_*`` and ``trajectory_*`` columns repeat these with one line's probabilities and
+    tiers, over the taxa that line assessed.
+    *Diversity*: ``diversity_loss`` is the expected number of rank-tree branches (unit length per
+    rank level) lost from the tree spanned by the region's assessed taxa; see
+    :func:`analog.regions.diversity.expected_diversity_loss` (after Faith 2008).
+    *Flags*: a region with fewer than ``min_taxa`` assessed taxa or ``min_region_records`` records
+    is flagged 'insufficient data'; its numbers are reported but maps hatch it instead of
+    colouring it.
+
+    References
+    ----------
+    Faith, D. P. (2008). Conservation Biology 22, 1461-1470.
+    """
+    params = params or PARAMS()
+    notes: list[str] = []
+    regions = study.regions.reset_index(drop=True)
+    occ = study.modern_occurrences
+    ea = equal_area_crs(regions, projection=params.projection)
+
+    pos = assign_points(occ["decimalLongitude"].to_numpy(dtype=float), occ["decimalLatitude"].to_numpy(dtype=float),
+                        regions, engine=params.engine, chunk_size=params.chunk_size)
+    if progress:
+        progress("regions", 1, 3)
+    inside = pos >= 0
+    region_ids = regions["region_id"].astype(str).to_numpy()
+    unassigned = occ.loc[~inside, ["occurrenceID", "taxon_id", "decimalLatitude", "decimalLongitude"]]
+    unassigned = unassigned.reset_index(drop=True)
+    if len(unassigned):
+        notes.append(f"{len(unassigned)} of {len(occ)} modern occurrences fall in no region; they are listed "
+                     "in unassigned_occurrences.csv and left out of the region indices")
+
+    records = pd.DataFrame({"region_id": region_ids[pos[inside]],
+                            "taxon_id": occ.loc[inside, "taxon_id"].astype(str).to_numpy()})
+    presence = records.groupby(["region_id", "taxon_id"], sort=True).size().rename("n_records").reset_index()
+    presence["present"] = presence["n_records"] >= params.min_records
+    rk = combined_result.rankings.set_index("taxon_id")
+    presence = presence.join(rk[["scientificName", "combined_p", "tier"]], on="taxon_id")
+    presence = presence[PRESENCE_COLUMNS + ["scientificName", "combined_p", "tier"]]
+
+    summary = _indices(regions, presence, records, combined_result, study, params, notes)
+    if progress:
+        progress("regions", 2, 3)
+    summary["area_km2"] = region_areas_km2(regions, ea.crs).to_numpy()
+    layer = regions[["region_id", "geometry"]].merge(summary, on="region_id", how="left")
+    layer = layer[[c for c in layer.columns if c != "geometry"] + ["geometry"]]
+    if progress:
+        progress("regions", 3, 3)
+    for msg in notes:
+        warnings.warn(msg, AnalogWarning, stacklevel=2)
+    return RegionResult(presence=presence, region_summary=summary, layer=layer, unassigned=int(len(unassigned)),
+                        unassigned_occurrences=unassigned, projection=ea.proj, projection_label=ea.label,
+                        params=params, warnings=notes)
+
+
+def _indices(regions, presence, records, combined_result, study, params, notes) -> pd.DataFrame:
+    rid = regions["region_id"].astype(str).to_numpy()
+    rk = combined_result.rankings.set_index("taxon_id")
+    taxa = rk.index.to_numpy()
+    present = presence[presence["present"]]
+    # taxa x regions presence matrix over every ranked taxon
+    P = np.zeros((len(taxa), len(rid)), dtype=bool)
+    ti = pd.Index(taxa).get_indexer(present["taxon_id"])
+    ri = pd.Index(rid).get_indexer(present["region_id"])
+    known = ti >= 0
+    P[ti[known], ri[known]] = True
+    extra = present.loc[~known].groupby("region_id").size()  # present but not in the rankings at all
+
+    out = pd.DataFrame({"region_id": rid, "name": regions["name"].astype(str).to_numpy()})
+    out["n_records"] = records.groupby("region_id").size().reindex(rid, fill_value=0).to_numpy()
+    alpha = (1.0 - params.interval) / 2.0
+    top_tiers = set(TIER_NAMES[:TIER_NAMES.index(params.top_tier) + 1])
+    for line, (pcol, tcol, dattr) in _LINES.items():
+        p = rk[pcol].to_numpy(dtype=float)
+        has = ~np.isnan(p)
+        M = P & has[:, None]
+        n = M.sum(axis=0)
+        draws = getattr(combined_result, dattr).reindex(taxa).to_numpy(dtype=float)
+        summed = M.T.astype(float) @ np.nan_to_num(draws)
+        expected = M.T.astype(float) @ np.nan_to_num(p)
+        top = rk[tcol].isin(top_tiers).to_numpy()
+        prefix = "" if line == "combined" else f"{line}_"
+        cols = {"n_taxa": n, "expected_losses": expected,
+                "expected_losses_low": _q(summed, alpha), "expected_losses_high": _q(summed, 1 - alpha),
+                "mean_p": np.divide(expected, n, out=np.full(len(n), np.nan), where=n > 0),
+                "n_top_tier": (M & top[:, None]).sum(axis=0)}
+        for c in LINE_COLUMNS:
+            name = "mean_combined_p" if (line == "combined" and c == "mean_p") else prefix + c
+            out[name] = cols[c]
+        if line == "combined":
+            out["n_taxa_present"] = P.sum(axis=0) + extra.reindex(rid, fill_value=0).to_numpy()
+            out["n_taxa_unassessed"] = out["n_taxa_present"] - n
+            combined_mask, combined_p, combined_draws = M, p, draws
+    a = rk["analog_p"].to_numpy(dtype=float)
+    t = rk["trajectory_p"].to_numpy(dtype=float)
+    both = P & (~np.isnan(a) & ~np.isnan(t))[:, None]
+    out["n_taxa_both"] = both.sum(axis=0)
+    diff_sum = both.T.astype(float) @ np.nan_to_num(a - t)
+    out["mean_difference"] = np.divide(diff_sum, out["n_taxa_both"].to_numpy(),
+                                       out=np.full(len(rid), np.nan), where=out["n_taxa_both"].to_numpy() > 0)
+    out = out.join(_diversity(study, taxa, combined_mask, combined_p, combined_draws, alpha, rid, notes))
+
+    few_taxa = out["n_taxa"] < params.min_taxa
+    few_records = out["n_records"] < params.min_region_records
+    out["data_flag"] = np.where(few_taxa | few_records, "insufficient data", "ok")
+    reason = np.where(few_taxa, out["n_taxa"].map(lambda v: f"{v} assessed taxa (fewer than {params.min_taxa})"), "")
+    reason2 = np.where(few_records, out["n_records"].map(
+        lambda v: f"{v} records (fewer than {params.min_region_records})"), "")
+    out["flag_reason"] = ["; ".join(s for s in pair if s) for pair in zip(reason, reason2)]
+    rest = [c for c in out.columns if c not in SUMMARY_COLUMNS]
+    return out[SUMMARY_COLUMNS + rest]
+
+
+def _q(summed: np.ndarray, q: float) -> np.ndarray:
+    if summed.shape[1] == 0:
+        return np.full(summed.shape[0], np.nan)
+    return np.quantile(summed, q, axis=1)
+
+
+def _diversity(study, taxa, mask, p, draws, alpha, rid, notes) -> pd.DataFrame:
+    cols = ["diversity_loss", "diversity_loss_low", "diversity_loss_high", "diversity_total"]
+    out = pd.DataFrame(np.nan, index=range(len(rid)), columns=cols)
+    assessed = ~np.isnan(p)
+    if not assessed.any():
+        return out
+    from ..taxonomy import build_rank_tree
+
+    tree = build_rank_tree(study.taxa)
+    ids = taxa[assessed]
+    inc, _ = branch_incidence(tree, ids)
+    m = mask[assessed]
+    out["diversity_loss"] = expected_diversity_loss(inc, m, p[assessed])
+    out["diversity_total"] = expected_diversity_loss(inc, m, np.ones(assessed.sum()))
+    if draws.shape[1]:
+        per_draw = expected_diversity_loss(inc, m, np.nan_to_num(draws[assessed], nan=0.0))
+        out["diversity_loss_low"] = np.quantile(per_draw, alpha, axis=1)
+        out["diversity_loss_high"] = np.quantile(per_draw, 1 - alpha, axis=1)
+    return out

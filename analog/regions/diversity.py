@@ -1,0 +1,106 @@
+"""Expected loss of taxonomic diversity on the rank tree (after Faith 2008)."""
+from __future__ import annotations
+
+import networkx as nx
+import numpy as np
+import scipy.sparse as sp
+
+__all__ = ["branch_incidence", "expected_diversity_loss"]
+
+
+def branch_incidence(tree: nx.DiGraph, taxon_ids) -> tuple[sp.csr_matrix, list]:
+    """Which taxa sit below each branch of a rooted tree.
+
+    Parameters
+    ----------
+    tree : networkx.DiGraph
+        Edges point from parent to child (root -> ... -> taxon). A taxon's node is the node named
+        by its taxon_id, or the node whose ``taxon_id`` attribute equals it.
+    taxon_ids : sequence of str
+
+    Returns
+    -------
+    incidence : scipy.sparse.csr_matrix, shape (n_branches, n_taxa)
+        ``incidence[b, i] = 1`` when taxon ``i`` lies below branch ``b``. Each non-root node
+        carries one branch, the edge from its parent; roots (no parent) carry none.
+    branches : list
+        The node below each branch, in row order.
+
+    Raises
+    ------
+    KeyError
+        When a taxon has no node in the tree.
+    """
+    by_attr = {str(d["taxon_id"]): n for n, d in tree.nodes(data=True) if "taxon_id" in d}
+    branches = [n for n in tree.nodes if tree.in_degree(n) > 0]
+    row_of = {n: i for i, n in enumerate(branches)}
+    rows, cols = [], []
+    for j, t in enumerate(taxon_ids):
+        node = by_attr.get(str(t), t if t in tree else None)
+        if node is None:
+            raise KeyError(f"taxon '{t}' is not in the rank tree")
+        for n in nx.ancestors(tree, node) | {node}:
+            if n in row_of:
+                rows.append(row_of[n])
+                cols.append(j)
+    data = np.ones(len(rows), dtype=float)
+    inc = sp.csr_matrix((data, (rows, cols)), shape=(len(branches), len(taxon_ids)))
+    return inc, branches
+
+
+def expected_diversity_loss(incidence: sp.csr_matrix, present: np.ndarray, p: np.ndarray, *,
+                            lengths: np.ndarray | None = None) -> np.ndarray:
+    """Expected branch length lost from each region's tree.
+
+    Parameters
+    ----------
+    incidence : sparse matrix, shape (n_branches, n_taxa)
+        From :func:`branch_incidence`.
+    present : bool array, shape (n_taxa, n_regions)
+        Taxa present (and assessed) in each region.
+    p : array, shape (n_taxa,) or (n_taxa, n_draws)
+        Probability each taxon is lost.
+    lengths : array, shape (n_branches,), optional
+        Branch lengths; unit length per branch when omitted.
+
+    Returns
+    -------
+    ndarray, shape (n_regions,) or (n_regions, n_draws)
+        ``Σ_b L_b Π_{i below b, present} p_i`` over the branches with at least one present taxon
+        below them.
+
+    Notes
+    -----
+    A region's tree is the part of the rank tree spanned by the taxa present there. A branch is
+    lost when every taxon below it is lost; with losses independent its loss probability is the
+    product of their probabilities, and the expected loss of tree length is the sum over
+    branches (Faith 2008, the complement of expected phylogenetic diversity). Taxa absent from
+    the region do not protect its branches. The products are taken as sums of logs.
+
+    References
+    ----------
+    Faith, D. P. (2008). Threatened species and the potential loss of phylogenetic diversity:
+    conservation scenarios based on estimated extinction probabilities and phylogenetic risk
+    analysis. Conservation Biology 22, 1461-1470.
+    """
+    p = np.asarray(p, dtype=float)
+    squeeze = p.ndim == 1
+    if squeeze:
+        p = p[:, None]
+    present = np.asarray(present, dtype=bool)
+    n_regions = present.shape[1]
+    lengths = np.ones(incidence.shape[0]) if lengths is None else np.asarray(lengths, dtype=float)
+    with np.errstate(divide="ignore"):
+        logp = np.log(np.clip(p, 0.0, 1.0))
+    out = np.zeros((n_regions, p.shape[1]))
+    inc = incidence.tocsc()
+    for r in range(n_regions):  # one sparse product per region, not per taxon
+        idx = np.flatnonzero(present[:, r])
+        if not len(idx):
+            continue
+        sub = inc[:, idx]
+        spanned = np.asarray(sub.sum(axis=1)).ravel() > 0
+        lp = np.nan_to_num(logp[idx], neginf=-1e300)  # p = 0: the branch certainly survives
+        log_lost = sub[spanned] @ lp
+        out[r] = lengths[spanned] @ np.exp(log_lost)
+    return out[:, 0] if squeeze else out
