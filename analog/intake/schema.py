@@ -1,0 +1,376 @@
+"""Read the Table Schema descriptors in data_schemas/ and check tables against them.
+
+The descriptors are read at run time (``analog._resources.resource_dir('schemas')``),
+so the published schema and the checks are the same thing. Besides the standard
+Frictionless Table Schema properties (``fields``, ``type``, ``constraints``
+``required``/``unique``/``minimum``/``maximum``/``enum``/``pattern``,
+``trueValues``/``falseValues``, ``missingValues``, ``primaryKey``, ``foreignKeys``)
+the descriptors use a few extension properties documented in data_schemas/README.md:
+``columnRequired``, ``warnIfAbsent``, ``caseInsensitive``, ``severity``,
+``alternatives``, ``ignoredColumns`` and ``rules``.
+
+All checks are vectorized over whole columns.
+"""
+from __future__ import annotations
+
+import difflib
+import functools
+import json
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from .._resources import resource_dir
+from ..errors import AnalogError
+from .findings import Findings, show
+
+__all__ = ["TableSchema", "load_table_schema", "check_columns", "check_fields", "clean_text",
+           "parse_number", "parse_boolean", "close_names"]
+
+# Frictionless types this validator understands.
+_TYPES = {"string", "number", "integer", "boolean", "date", "geojson"}
+
+
+@dataclass(frozen=True)
+class TableSchema:
+    """A Table Schema descriptor with helpers for the extension properties."""
+
+    name: str
+    descriptor: dict
+
+    @property
+    def fields(self) -> list[dict]:
+        return self.descriptor["fields"]
+
+    @property
+    def field_names(self) -> list[str]:
+        return [f["name"] for f in self.fields]
+
+    def field(self, name: str) -> dict:
+        for f in self.fields:
+            if f["name"] == name:
+                return f
+        raise KeyError(name)
+
+    @property
+    def missing_values(self) -> list[str]:
+        return list(self.descriptor.get("missingValues", [""]))
+
+    @property
+    def alternatives(self) -> list[dict]:
+        return list(self.descriptor.get("alternatives", []))
+
+    @property
+    def foreign_keys(self) -> list[dict]:
+        return list(self.descriptor.get("foreignKeys", []))
+
+    @property
+    def ignored_columns(self) -> set[str]:
+        return set(self.descriptor.get("ignoredColumns", []))
+
+    @property
+    def rule_ids(self) -> list[str]:
+        return [r["id"] for r in self.descriptor.get("rules", [])]
+
+    def rule(self, rule_id: str) -> dict:
+        """The rule entry; a rule the code applies must be documented in the descriptor."""
+        for r in self.descriptor.get("rules", []):
+            if r["id"] == rule_id:
+                return r
+        raise AnalogError(f"rule '{rule_id}' is applied to {self.name} but not described in "
+                          f"data_schemas/{self.name}.schema.json; add it there")
+
+    def in_alternative(self, name: str) -> bool:
+        return any(name in opt for alt in self.alternatives for opt in alt["options"])
+
+    def column_required(self, name: str) -> bool:
+        f = self.field(name)
+        return f.get("columnRequired", True) and not self.in_alternative(name) and f["type"] != "geojson"
+
+    def severity(self, name: str, rule: str) -> str:
+        return self.field(name).get("severity", {}).get(rule, "error")
+
+
+@functools.lru_cache(maxsize=None)
+def _read_descriptor(name: str) -> str:
+    path = resource_dir("schemas") / f"{name}.schema.json"
+    return path.read_text(encoding="utf-8")
+
+
+def load_table_schema(name: str) -> TableSchema:
+    """The descriptor ``data_schemas/<name>.schema.json``."""
+    descriptor = json.loads(_read_descriptor(name))
+    for f in descriptor["fields"]:
+        if f.get("type", "string") not in _TYPES:
+            raise AnalogError(f"field '{f['name']}' of {name}.schema.json has type {f.get('type')!r}; "
+                              f"the validator understands {sorted(_TYPES)}")
+    return TableSchema(name, descriptor)
+
+
+def close_names(name: str, candidates, n: int = 1) -> list[str]:
+    """Closest spellings of ``name`` among ``candidates``, ignoring case."""
+    candidates = [str(c) for c in candidates]
+    folded = {c.casefold(): c for c in candidates}
+    hits = difflib.get_close_matches(name.casefold(), list(folded), n=n, cutoff=0.6)
+    return [folded[h] for h in hits]
+
+
+# --- columns -------------------------------------------------------------------------------
+
+def check_columns(columns, schema: TableSchema, file: str, findings: Findings) -> bool:
+    """Required columns and alternative column groups; True if all needed columns exist."""
+    columns = list(columns)
+    present = set(columns)
+    ok = True
+    seen = set()
+    dups = [c for c in columns if c in seen or seen.add(c)]
+    for c in sorted(set(dups)):
+        findings.add(file, f"the column '{c}' more than once", "each column name once",
+                     f"rename or delete the extra '{c}' column", column=c)
+        ok = False
+    for name in schema.field_names:
+        if name in present or not schema.column_required(name):
+            continue
+        close = [c for c in close_names(name, [c for c in columns if c not in schema.field_names])]
+        fix = (f"rename column '{close[0]}' to '{name}'" if close
+               else f"add a column named '{name}' ({schema.field(name).get('description', '')})")
+        findings.add(file, f"no column '{name}'", f"a column '{name}' (see data_schemas/{schema.name}.schema.json)",
+                     fix, row=1, column=name)
+        ok = False
+    for alt in schema.alternatives:
+        options = alt["options"]
+        if any(all(c in present for c in opt) for opt in options):
+            continue
+        spelled = " or ".join("+".join(opt) for opt in options)
+        partial = [c for opt in options for c in opt if c in present]
+        found = (f"only {', '.join(repr(p) for p in partial)} for the {alt['name']}" if partial
+                 else f"no columns for the {alt['name']}")
+        findings.add(file, found, f"columns {spelled}", f"add the missing column(s) for the {alt['name']}",
+                     row=1, column=" / ".join("+".join(opt) for opt in options))
+        ok = False
+    return ok
+
+
+# --- values --------------------------------------------------------------------------------
+
+def clean_text(series: pd.Series, missing_values) -> pd.Series:
+    """Text values trimmed, with the schema's missing-value spellings as NA (string dtype)."""
+    if series.dtype.kind in "biuf":
+        return _numbers_as_text(series)
+    s = series.astype("str").str.strip()
+    return s.mask(s.isin(list(missing_values)))
+
+
+def _numbers_as_text(series: pd.Series) -> pd.Series:
+    # Identifiers stored as numbers (Parquet, GeoPackage): 12.0 -> '12', keep NaN as NA.
+    if series.dtype.kind == "f":
+        vals = series.to_numpy()
+        finite = np.isfinite(vals)
+        if finite.any() and np.all(np.mod(vals[finite], 1) == 0):
+            series = series.astype("Int64")
+    out = series.astype("str")
+    return out.mask(series.isna())
+
+
+def parse_number(text: pd.Series, *, decimal_comma: bool = False) -> tuple[pd.Series, np.ndarray]:
+    """Float values and a mask of cells that are filled but not a finite number."""
+    if text.dtype.kind in "biuf":
+        values = text.astype("float64")
+        bad = ~np.isfinite(values.to_numpy()) & values.notna().to_numpy()
+        return values.mask(bad), bad
+    s = text
+    if decimal_comma:
+        s = s.str.replace(r"^([+-]?\d*),(\d+)$", r"\1.\2", regex=True)
+    values = pd.to_numeric(s, errors="coerce").astype("float64")
+    vals = values.to_numpy()
+    bad = text.notna().to_numpy() & ~np.isfinite(vals)
+    return values.mask(bad), bad
+
+
+def parse_boolean(text: pd.Series, true_values, false_values) -> tuple[pd.Series, np.ndarray]:
+    """Boolean values (``boolean`` dtype) and a mask of cells that are filled but not recognised."""
+    if text.dtype.kind == "b":
+        return text.astype("boolean"), np.zeros(len(text), bool)
+    if text.dtype.kind in "iuf":
+        text = _numbers_as_text(text)
+    lookup = {str(v).casefold(): True for v in true_values}
+    lookup.update({str(v).casefold(): False for v in false_values})
+    mapped = text.str.casefold().map(lookup)
+    bad = text.notna().to_numpy() & mapped.isna().to_numpy()
+    return mapped.astype("boolean"), bad
+
+
+def _first_rows(values: pd.Series, rows: np.ndarray) -> pd.Series:
+    """For each value, the spreadsheet row where it first appears."""
+    first = pd.Series(rows, index=values.index).groupby(values.to_numpy(), sort=False).transform("min")
+    return first
+
+
+def check_fields(df: pd.DataFrame, schema: TableSchema, file: str, findings: Findings, *,
+                 row_offset: int = 2, decimal_comma: bool = False, role: str | None = None):
+    """Check and type every schema field present in ``df``.
+
+    Parameters
+    ----------
+    df : DataFrame
+        Raw table (text columns, or typed columns from Parquet). Its index must be
+        the 0-based position of each record in the file.
+    row_offset : int, default=2
+        Added to the position to give the row number shown (2 = header on row 1).
+    decimal_comma : bool, default=False
+        Accept ``12,5`` as 12.5 in number columns (files separated by semicolons).
+
+    Returns
+    -------
+    typed : DataFrame
+        One column per schema field (absent optional ones filled with NA), typed:
+        string -> ``str``, number -> float64, integer -> Int64, boolean -> ``boolean``.
+        Cells that failed a check are NA.
+    drop : ndarray of bool
+        Rows to leave out because a check with severity ``"drop"`` failed.
+    """
+    rows = df.index.to_numpy() + row_offset
+    typed = {}
+    drop = np.zeros(len(df), bool)
+    missing = schema.missing_values
+    for f in schema.fields:
+        name, kind = f["name"], f.get("type", "string")
+        if kind == "geojson":
+            continue
+        if name not in df.columns:
+            typed[name] = _empty_column(kind, df.index)
+            if f.get("warnIfAbsent"):
+                findings.warn(f"{file}: no column '{name}'; treated as blank")
+            continue
+        raw = df[name]
+        text = clean_text(raw, missing)
+        blank = text.isna().to_numpy()
+        cons = f.get("constraints", {})
+        # type
+        if kind == "string":
+            values = text
+            if f.get("caseInsensitive"):
+                values = values.str.casefold()
+            bad = np.zeros(len(df), bool)
+        elif kind in ("number", "integer"):
+            values, bad = parse_number(raw if raw.dtype.kind in "biuf" else text, decimal_comma=decimal_comma)
+            if kind == "integer":
+                frac = values.notna().to_numpy() & (np.mod(values.fillna(0).to_numpy(), 1) != 0)
+                bad |= frac
+                values = values.mask(frac).astype("Int64")
+        elif kind == "boolean":
+            values, bad = parse_boolean(raw if raw.dtype.kind == "b" else text,
+                                        f.get("trueValues", ["true"]), f.get("falseValues", ["false"]))
+        elif kind == "date":
+            values = pd.to_datetime(text, format="%Y-%m-%d", errors="coerce")
+            bad = ~blank & values.isna().to_numpy()
+        if bad.any():
+            expected = _type_words(f, decimal_comma)
+            fix = f"correct these cells in column '{name}' (or leave them blank if allowed)"
+            if kind in ("number", "integer") and not decimal_comma and text[bad].str.contains(
+                    r"^[+-]?\d*,\d+$", regex=True).any():
+                fix += "; use a dot as the decimal mark (or separate columns with semicolons)"
+            _report(findings, schema, name, "type", file, rows[bad],
+                    [f"{show(v)} (not {_a(kind)})" for v in text[bad].head(50)], expected, fix)
+            values = values.mask(bad)
+        ok = values.notna().to_numpy()
+        # constraints
+        if cons.get("required"):
+            sev = schema.severity(name, "required")
+            if blank.any():
+                if sev == "drop":
+                    drop |= blank
+                    findings.drop(role or schema.name, f"blank {name}", blank.sum(),
+                                  [f"row {r}" for r in rows[blank][:10]])
+                    findings.row_warning(f"{file}: {blank.sum()} row(s) with a blank {name} left out", rows[blank])
+                else:
+                    _report(findings, schema, name, "required", file, rows[blank], "a blank cell",
+                            f"a value in every row of '{name}'",
+                            f"fill column '{name}' in these rows or delete the rows")
+        for bound, op in (("minimum", np.less), ("maximum", np.greater)):
+            if bound in cons and kind in ("number", "integer"):
+                limit = cons[bound]
+                vals = values.to_numpy(dtype="float64", na_value=np.nan)
+                out = ok & op(vals, limit, where=ok, out=np.zeros(len(vals), bool))
+                if out.any():
+                    lo, hi = cons.get("minimum"), cons.get("maximum")
+                    rng = (f"between {lo:g} and {hi:g}" if lo is not None and hi is not None
+                           else f"at least {lo:g}" if lo is not None else f"at most {hi:g}")
+                    fix = f"correct the values in '{name}'"
+                    if name in ("decimalLatitude", "decimalLongitude"):
+                        fix += "; check that latitude and longitude are not swapped and are decimal degrees"
+                    _report(findings, schema, name, bound, file, rows[out],
+                            [show(v) for v in text[out].head(50)], f"a number {rng}", fix)
+                    values = values.mask(out)
+                    ok &= ~out
+        if "enum" in cons:
+            allowed = list(cons["enum"])
+            folded = [a.casefold() for a in allowed] if f.get("caseInsensitive") else allowed
+            out = ok & ~values.isin(folded).to_numpy()
+            if out.any():
+                _report(findings, schema, name, "enum", file, rows[out],
+                        [f"{show(v)}" + _suggest(v, allowed) for v in text[out].head(50)],
+                        f"one of {allowed}" + (" (case ignored)" if f.get("caseInsensitive") else ""),
+                        f"use one of the allowed values in '{name}'")
+                values = values.mask(out)
+                ok &= ~out
+        if "pattern" in cons and kind == "string":
+            out = ok & ~values.str.fullmatch(cons["pattern"]).fillna(False).to_numpy(bool)
+            if out.any():
+                _report(findings, schema, name, "pattern", file, rows[out], [show(v) for v in text[out].head(50)],
+                        f"text matching {cons['pattern']!r}", f"correct the values in '{name}'")
+                values = values.mask(out)
+                ok &= ~out
+        unique = cons.get("unique") or schema.descriptor.get("primaryKey") == [name]
+        if unique and ok.any():
+            dup = ok & values.duplicated(keep="first").to_numpy()
+            if dup.any():
+                first = _first_rows(values[ok], rows[ok]).reindex(values.index).to_numpy()
+                sev = schema.severity(name, "unique")
+                if sev == "warning":
+                    n_dup = int(dup.sum())
+                    findings.row_warning(
+                        f"{file}: {n_dup} row(s) repeat an {name} of an earlier row (kept; "
+                        f"e.g. {show(text[dup].iloc[0])} also in row {int(first[dup][0])})", rows[dup])
+                else:
+                    found = [f"{show(v)} again (first in row {int(r)})"
+                             for v, r in zip(text[dup].head(50), first[dup][:50])]
+                    _report(findings, schema, name, "unique", file, rows[dup], found,
+                            f"each {name} once", f"give each row its own {name} or merge the duplicates")
+        typed[name] = values
+    out = pd.DataFrame(typed, index=df.index)
+    return out, drop
+
+
+def _report(findings, schema, name, rule, file, rows, found, expected, fix):
+    findings.rows(file, name, rows, found, expected, fix)
+
+
+def _suggest(value, allowed) -> str:
+    close = close_names(str(value), allowed)
+    return f" (did you mean '{close[0]}'?)" if close else ""
+
+
+def _a(kind: str) -> str:
+    return {"number": "a number", "integer": "a whole number", "boolean": "true/false",
+            "date": "a date YYYY-MM-DD"}.get(kind, kind)
+
+
+def _type_words(f: dict, decimal_comma: bool) -> str:
+    kind = f.get("type", "string")
+    if kind == "number":
+        return "a number" + (" (dot or comma as decimal mark)" if decimal_comma else " (dot as decimal mark)")
+    if kind == "integer":
+        return "a whole number"
+    if kind == "boolean":
+        return f"one of {list(f.get('trueValues', ['true']))} or {list(f.get('falseValues', ['false']))} (case ignored)"
+    if kind == "date":
+        return "a date written YYYY-MM-DD"
+    return kind
+
+
+def _empty_column(kind: str, index) -> pd.Series:
+    dtype = {"string": "str", "number": "float64", "integer": "Int64", "boolean": "boolean"}.get(kind, "object")
+    return pd.Series(pd.array([None] * len(index), dtype=dtype) if dtype != "float64"
+                     else np.full(len(index), np.nan), index=index)

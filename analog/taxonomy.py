@@ -1,0 +1,218 @@
+"""Taxonomic structure from the Darwin Core rank columns of the taxa table.
+
+Two views of the same ranks:
+
+* :func:`build_rank_tree` — a ``networkx.DiGraph`` (root -> kingdom -> ... -> genus
+  -> taxon) for display and tree-based diversity measures;
+* :func:`taxonomic_distance_matrix` / :func:`shared_rank_depth` — fast all-pairs
+  comparison of rank columns, for matching living taxa to fossil relatives.
+
+Taxonomic distance is the number of rank levels one climbs from a taxon to the
+lowest rank it shares with the other, divided by the number of levels
+(kingdom, phylum, class, order, family, genus, taxon = 7): 0 for the same taxon,
+1/7 for two taxa of one genus, 1 when not even the kingdom is shared.
+"""
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pandas as pd
+
+from .errors import AnalogWarning, InputError, Problem
+from .study import RANK_COLUMNS
+
+__all__ = ["RANK_LEVELS", "build_rank_tree", "lowest_shared_rank", "shared_rank_depth",
+           "taxonomic_distance_matrix"]
+
+# Depth 0 = nothing shared, 1..6 = the rank columns, 7 = the same taxon.
+RANK_LEVELS = ("root",) + RANK_COLUMNS + ("taxon",)
+_N_LEVELS = len(RANK_LEVELS) - 1
+ROOT = "root"
+
+
+def _check_columns(taxa: pd.DataFrame, where: str):
+    missing = [c for c in ("taxon_id",) + RANK_COLUMNS if c not in taxa.columns]
+    if missing:
+        raise InputError(Problem(where, f"no column(s) {missing}", f"columns taxon_id and {list(RANK_COLUMNS)}",
+                                 "pass the taxa table of a loaded study (analog.intake.load_study)"))
+
+
+def _blank(values: pd.Series) -> np.ndarray:
+    text = values.astype("str").str.strip()
+    return (values.isna() | (text == "")).to_numpy()
+
+
+def build_rank_tree(taxa: pd.DataFrame):
+    """Directed graph of the ranks: ``root`` -> kingdom -> ... -> genus -> taxon.
+
+    Parameters
+    ----------
+    taxa : DataFrame
+        Columns ``taxon_id``, ``kingdom, phylum, class, order, family, genus`` (blank
+        allowed) and optionally ``scientificName`` and ``taxonRank``.
+
+    Returns
+    -------
+    networkx.DiGraph
+        Node ids are ``'root'``, ``'<rank>:<name>'`` for rank nodes (for example
+        ``'family:Ostreidae'``) and ``'taxon:<taxon_id>'`` for taxa. Every node has
+        attributes ``rank`` and ``name``; taxon nodes also ``taxon_id``. A blank rank
+        is skipped: the node links to the next filled rank above it.
+
+    Notes
+    -----
+    Rank names are prefixed with their rank so that a genus and a family of the same
+    spelling stay apart. The same name at the same rank is one node; if such a name
+    sits under two different parents (a homonym, or inconsistent higher ranks), the
+    graph is no longer a tree and an :class:`~analog.errors.AnalogWarning` names it.
+    """
+    import networkx as nx
+
+    _check_columns(taxa, "taxa")
+    g = nx.DiGraph()
+    g.add_node(ROOT, rank="root", name="root")
+    # Unique rank paths first: a few thousand distinct paths even for 100,000 taxa.
+    ranks = taxa[list(RANK_COLUMNS)].astype("str").where(taxa[list(RANK_COLUMNS)].notna(), "")
+    ranks = ranks.apply(lambda s: s.str.strip())
+    paths = ranks.drop_duplicates()
+    for path in paths.itertuples(index=False):
+        parent = ROOT
+        for rank, name in zip(RANK_COLUMNS, path):
+            if not name:
+                continue
+            node = f"{rank}:{name}"
+            if node not in g:
+                g.add_node(node, rank=rank, name=name)
+            g.add_edge(parent, node)
+            parent = node
+    leaf = pd.Series(ROOT, index=ranks.index, dtype="str")
+    for rank in RANK_COLUMNS:  # the deepest filled rank is each taxon's parent
+        leaf = leaf.mask(ranks[rank] != "", rank + ":" + ranks[rank])
+    names = taxa["scientificName"] if "scientificName" in taxa.columns else taxa["taxon_id"]
+    rank_col = taxa["taxonRank"] if "taxonRank" in taxa.columns else pd.Series(["taxon"] * len(taxa))
+    for tid, name, rank, parent in zip(taxa["taxon_id"], names, rank_col, leaf):
+        node = f"taxon:{tid}"
+        g.add_node(node, rank=str(rank), name=str(name), taxon_id=str(tid))
+        g.add_edge(parent, node)
+    clashes = sorted(n for n, d in g.in_degree() if d > 1)
+    if clashes:
+        warnings.warn(f"rank names under more than one parent (homonyms or inconsistent higher ranks): "
+                      f"{', '.join(clashes[:10])}{' ...' if len(clashes) > 10 else ''}; the rank graph is "
+                      f"not a tree there", AnalogWarning, stacklevel=2)
+    return g
+
+
+def lowest_shared_rank(tree, a, b) -> str:
+    """Lowest rank two taxa share in a graph from :func:`build_rank_tree`.
+
+    Parameters
+    ----------
+    tree : networkx.DiGraph
+    a, b : str
+        taxon_id values.
+
+    Returns
+    -------
+    str
+        ``'taxon'`` if ``a == b``; else the rank of the lowest shared ancestor
+        (``'genus'`` ... ``'kingdom'``), or ``'root'`` if none is shared.
+    """
+    import networkx as nx
+
+    na, nb = f"taxon:{a}", f"taxon:{b}"
+    for node in (na, nb):
+        if node not in tree:
+            raise KeyError(f"taxon_id {node[6:]!r} is not in the rank tree")
+    if na == nb:
+        return "taxon"
+    up_a = nx.ancestors(tree, na)
+    # walk up from b along its first parent chain; the first node also above a is the lowest shared
+    node = nb
+    while True:
+        parents = list(tree.predecessors(node))
+        if not parents:
+            return "root"
+        node = parents[0]
+        if node in up_a:
+            return tree.nodes[node]["rank"]
+
+
+def _codes(a: pd.Series, b: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Shared integer codes of two text columns; blank -> -1."""
+    both = pd.concat([a.astype("str").str.strip().where(a.notna() & (a.astype("str").str.strip() != "")),
+                      b.astype("str").str.strip().where(b.notna() & (b.astype("str").str.strip() != ""))],
+                     ignore_index=True)
+    codes, _ = pd.factorize(both, use_na_sentinel=True)
+    return codes[: len(a)], codes[len(a):]
+
+
+def shared_rank_depth(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame) -> np.ndarray:
+    """Depth of the lowest shared rank for every pair (rows of ``taxa_a`` x rows of ``taxa_b``).
+
+    Parameters
+    ----------
+    taxa_a, taxa_b : DataFrame
+        Columns ``taxon_id`` and the rank columns.
+
+    Returns
+    -------
+    ndarray of int8, shape (len(taxa_a), len(taxa_b))
+        Index into :data:`RANK_LEVELS`: 0 nothing shared, 1 kingdom ... 6 genus, 7 the
+        same taxon_id. A rank counts as shared when both taxa have it filled with the
+        same name; the deepest such rank wins (blank ranks are skipped).
+
+    Notes
+    -----
+    Memory: one int8 matrix plus one boolean temporary, so 20,000 x 3,000 pairs
+    take about 120 MB.
+    """
+    _check_columns(taxa_a, "taxa_a")
+    _check_columns(taxa_b, "taxa_b")
+    depth = np.zeros((len(taxa_a), len(taxa_b)), dtype=np.int8)
+    for level, rank in enumerate(RANK_COLUMNS, start=1):
+        ca, cb = _codes(taxa_a[rank], taxa_b[rank])
+        same = ca[:, None] == cb[None, :]
+        same &= (ca >= 0)[:, None]
+        depth[same] = level
+    ia, ib = _codes(taxa_a["taxon_id"], taxa_b["taxon_id"])
+    same = (ia[:, None] == ib[None, :]) & (ia >= 0)[:, None]
+    depth[same] = _N_LEVELS
+    return depth
+
+
+def taxonomic_distance_matrix(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame, *, dtype=np.float64):
+    """Taxonomic distance and lowest shared rank for every pair of taxa.
+
+    Parameters
+    ----------
+    taxa_a, taxa_b : DataFrame
+        Columns ``taxon_id`` and ``kingdom, phylum, class, order, family, genus``.
+    dtype : numpy float dtype, default=numpy.float64
+        Of the distance matrix (``numpy.float32`` halves memory for large tables).
+
+    Returns
+    -------
+    distance : ndarray, shape (len(taxa_a), len(taxa_b))
+        ``(7 - depth) / 7`` where depth is the lowest shared level (see
+        :func:`shared_rank_depth`): 0 same taxon, 1/7 same genus, ..., 1 nothing shared.
+    shared_rank : ndarray of str, same shape
+        Name of that level: ``'taxon'``, ``'genus'``, ..., ``'kingdom'`` or ``'root'``.
+
+    Notes
+    -----
+    Rank levels are counted equally, a common practice for taxonomic distinctness
+    measures built on Linnaean ranks (Clarke & Warwick 1998 use equal steps between
+    levels). For very large tables call :func:`shared_rank_depth` and map depths
+    yourself: the string array costs 28 bytes per pair.
+
+    References
+    ----------
+    Clarke, K. R. & Warwick, R. M. (1998). A taxonomic distinctness index and its
+    statistical properties. Journal of Applied Ecology 35, 523-531.
+    """
+    depth = shared_rank_depth(taxa_a, taxa_b)
+    dtype = np.dtype(dtype)
+    distance = (_N_LEVELS - depth.astype(dtype)) / dtype.type(_N_LEVELS)
+    shared = np.asarray(RANK_LEVELS)[depth]
+    return distance, shared
