@@ -141,7 +141,8 @@ def hat_shape(paths, times=None, *, baseline="zero"):
     enumeration, and other Brownian areas. Probab. Surveys 4, 80-145.
     """
     if baseline not in ("zero", "min"):
-        raise AnalogError(f"`baseline` was {baseline!r} but is expected to be in {{'zero', 'min'}}")
+        raise AnalogError(f"`baseline` was {baseline!r} but is expected to be in "
+                          "{'zero', 'min'}")
     h, t, index = _as_rows(paths, times)
     n_rows, n_cols = h.shape
     cols = ["n_points", "peak_position", "symmetry", "peakedness"]
