@@ -39,6 +39,7 @@ MODEL_LABELS = {
 _VAR_FLOOR = 1e-6      # keeps the likelihood finite for a perfectly flat series
 _PEAK_GRID = 16        # grid points over the peak time (asymmetric curve)
 _PEAK_STEPS = 16       # golden-section steps after the grid
+_MIN_SIDE = 3          # observations a side of the asymmetric peak needs to get its own curvature
 _GOLD = (np.sqrt(5.0) - 1.0) / 2.0
 
 
@@ -271,18 +272,22 @@ def _asym_eval(t, y, m, n_obs, yy, c):
     """Least-squares fit of ``a − b_rise (t − c)² [t < c] − b_fall (t − c)² [t >= c]`` at fixed ``c``.
 
     The normal equations have an arrowhead form (the two curvature columns never
-    overlap), so each column subset is solved in closed form. Returns the feasible
+    overlap), so each column subset is solved in closed form. A side with fewer than
+    ``_MIN_SIDE`` observations stays flat (curvature 0). Returns the feasible
     (non-negative curvature) solution of least RSS: ``(rss, a, b_rise, b_fall)``.
     """
     d2 = (t - c[:, None]) ** 2 * m
-    dl = d2 * (t < c[:, None])
+    is_left = t < c[:, None]
+    n_left = (m * is_left).sum(1)
+    dl = d2 * is_left
     sl, ql, yl = dl.sum(1), (dl * dl).sum(1), (dl * y).sum(1)
     sr, qr, yr = d2.sum(1) - sl, (d2 * d2).sum(1) - ql, (d2 * y).sum(1) - yl
     ysum = y.sum(1)
     best = (np.full(len(c), np.inf), ysum / n_obs, np.zeros(len(c)), np.zeros(len(c)))
     with np.errstate(divide="ignore", invalid="ignore"):
-        gl = np.where(ql > 0, 1.0 / ql, 0.0)
-        gr = np.where(qr > 0, 1.0 / qr, 0.0)
+        # a side bends only with enough points on it; otherwise one point would be fitted exactly
+        gl = np.where((ql > 0) & (n_left >= _MIN_SIDE), 1.0 / ql, 0.0)
+        gr = np.where((qr > 0) & (n_obs - n_left >= _MIN_SIDE), 1.0 / qr, 0.0)
         for use_l, use_r in ((True, True), (True, False), (False, True), (False, False)):
             fl, fr = (gl if use_l else 0.0), (gr if use_r else 0.0)
             den = n_obs - sl * sl * fl - sr * sr * fr
