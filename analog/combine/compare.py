@@ -39,8 +39,8 @@ def compare_rankings(rankings: pd.DataFrame, analog_draws: pd.DataFrame, traject
     x = pr["analog_p"].to_numpy(dtype=float)
     y = pr["trajectory_p"].to_numpy(dtype=float)
     if n >= 3:
-        agree = stats.rank_agreement(x, y, n_boot=params.n_boot, rng=rng)
-        rows += _agreement_rows(agree, params.n_boot)
+        agree = stats.rank_agreement(x, y, n_boot=params.n_boot, rng=rng, alpha=1.0 - params.interval)
+        rows += _agreement_rows(agree, params.n_boot, params.interval)
     else:
         rows += [{"statistic": s, "estimate": np.nan, "low": np.nan, "high": np.nan,
                   "note": f"not computed: {n} taxa with both lines (need at least 3)"}
@@ -65,22 +65,16 @@ def compare_rankings(rankings: pd.DataFrame, analog_draws: pd.DataFrame, traject
     return pd.DataFrame(rows, columns=COMPARISON_COLUMNS)
 
 
-def _agreement_rows(agree, n_boot: int) -> list[dict]:
-    """Rows for the rank-correlation result object of :func:`analog.stats.rank_agreement`."""
+def _agreement_rows(agree, n_boot: int, interval: float) -> list[dict]:
+    """Rows for the :class:`analog.stats.RankAgreement` result."""
     out = []
-    for stat, label in (("kendall_tau_b", "Kendall's tau-b"), ("spearman_rho", "Spearman's rho")):
-        est, lo, hi = _stat_triplet(agree, stat)
-        out.append({"statistic": stat, "estimate": est, "low": lo, "high": hi,
-                    "note": f"{label} between analog and trajectory probabilities; percentile interval "
-                            f"from {n_boot} bootstrap resamples of taxa"})
+    for stat, prefix, label in (("kendall_tau_b", "kendall", "Kendall's tau-b"),
+                                ("spearman_rho", "spearman", "Spearman's rho")):
+        out.append({"statistic": stat, "estimate": float(getattr(agree, stat)),
+                    "low": float(getattr(agree, f"{prefix}_low")), "high": float(getattr(agree, f"{prefix}_high")),
+                    "note": f"{label} between analog and trajectory probabilities; {100 * interval:g}% percentile "
+                            f"interval from {n_boot} bootstrap resamples of taxa"})
     return out
-
-
-def _stat_triplet(agree, stat: str) -> tuple[float, float, float]:
-    est = getattr(agree, stat)
-    lo = getattr(agree, f"{stat}_low")
-    hi = getattr(agree, f"{stat}_high")
-    return float(est), float(lo), float(hi)
 
 
 def disagreement_table(rankings: pd.DataFrame, contributions: pd.DataFrame | None,

@@ -55,3 +55,77 @@ def add_caption(fig, text: str, *, data_date: str | None = None):
     parts.append(CAUTION)
     fig.text(0.01, 0.005, "  ".join(parts), ha="left", va="bottom", fontsize=6.5, color="#444444", wrap=True)
     return fig
+
+# -- map and chart details (added with the maps) ------------------------------------------------
+# Analog minus trajectory on maps: ColorBrewer PuOr, orange where the trajectory line is higher
+# (as TRAJECTORY_COLOUR), purple where the analog line is higher; centred on zero.
+DIFFERENCE_CMAP = "PuOr"
+CONTEXT_FILL = "#F2F0EB"     # context polygons (e.g. land) under the regions
+CONTEXT_LINE = "#9C9C9C"     # context lines (e.g. a coastline)
+REGION_EDGE = "#4D4D4D"      # region borders
+NO_DATA_EDGE = "#7A7A7A"     # hatch lines of insufficient-data regions
+LABEL_BOX = {"boxstyle": "round,pad=0.18", "facecolor": "white", "edgecolor": "none", "alpha": 0.82}
+LEADER_LINE = {"color": "#555555", "linewidth": 0.6}
+
+
+def place_labels(ax, anchors, texts, *, obstacles=(), fontsize: float = 7.5, max_iter: int = 400,
+                 pad_px: float = 2.0, **text_kw):
+    """Write ``texts`` near ``anchors`` (data coordinates) so that no two labels overlap.
+
+    Labels start centred on their anchors and are pushed apart, pair by pair along the axis of
+    least overlap, until none overlap each other, the ``obstacles`` (display-space Bboxes such
+    as a scale bar) or the axes edge. The order of pushes is fixed, so the result is
+    deterministic. A label that ends up away from its anchor gets a leader line and a dot.
+    Returns the Text artists.
+    """
+    import numpy as np
+
+    fig = ax.figure
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    anchors = np.asarray(anchors, dtype=float).reshape(-1, 2)
+    kw = {"ha": "center", "va": "center", "fontsize": fontsize, "zorder": 6, "bbox": LABEL_BOX}
+    kw.update(text_kw)
+    arts = [ax.text(x, y, s, **kw) for (x, y), s in zip(anchors, texts)]
+    if not arts:
+        return arts
+    ext = [a.get_window_extent(renderer) for a in arts]
+    half = np.array([[e.width / 2 + pad_px, e.height / 2 + pad_px] for e in ext])
+    pos = ax.transData.transform(anchors)
+    start = pos.copy()
+    box = ax.get_window_extent(renderer)
+    obs = [(np.array([(b.x0 + b.x1) / 2, (b.y0 + b.y1) / 2]), np.array([b.width / 2, b.height / 2]))
+           for b in obstacles]
+    n = len(arts)
+    for _ in range(max_iter):
+        moved = False
+        for i in range(n):
+            for j in range(i + 1, n):
+                d = pos[j] - pos[i]
+                over = half[i] + half[j] - np.abs(d)
+                if (over > 0).all():
+                    axis = int(over[1] < over[0]) if over[1] != over[0] else 1
+                    sign = np.sign(d[axis]) or (1.0 if j > i else -1.0)
+                    pos[i, axis] -= sign * over[axis] / 2 + 0.5
+                    pos[j, axis] += sign * over[axis] / 2 + 0.5
+                    moved = True
+            for centre, h in obs:
+                d = pos[i] - centre
+                over = half[i] + h - np.abs(d)
+                if (over > 0).all():
+                    axis = int(over[1] < over[0])
+                    pos[i, axis] += (np.sign(d[axis]) or 1.0) * (over[axis] + 0.5)
+                    moved = True
+        lo = np.array([box.x0, box.y0]) + half
+        hi = np.array([box.x1, box.y1]) - half
+        pos = np.clip(pos, lo, np.maximum(lo, hi))
+        if not moved:
+            break
+    inv = ax.transData.inverted()
+    for a, p, s, h, anchor in zip(arts, pos, start, half, anchors):
+        a.set_position(inv.transform(p))
+        if np.hypot(*(p - s)) > 0.8 * h[1]:
+            end = inv.transform(p)
+            ax.plot([anchor[0], end[0]], [anchor[1], end[1]], zorder=5, **LEADER_LINE)
+            ax.plot([anchor[0]], [anchor[1]], marker="o", markersize=1.8, color=LEADER_LINE["color"], zorder=5)
+    return arts
