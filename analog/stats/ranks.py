@@ -55,6 +55,7 @@ class RankAgreement:
         })
 
     def summary(self) -> str:
+        """One sentence for people: both statistics with their intervals."""
         level = f"{100 * (1 - self.alpha):g}%"
         return (f"Rank agreement over {self.n} pairs ({level} bootstrap intervals, "
                 f"{self.n_boot} replicates): Kendall's tau-b {self.kendall_tau_b:.3f} "

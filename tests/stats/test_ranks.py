@@ -68,7 +68,7 @@ def test_intervals_reproducible_and_ordered():
     x, y = _data(12, 50)
     a = rank_agreement(x, y, n_boot=500, rng=np.random.default_rng(3))
     b = rank_agreement(x, y, n_boot=500, rng=np.random.default_rng(3))
-    assert a == b
+    assert isinstance(a, RankAgreement) and a == b
     assert a.kendall_low < a.kendall_tau_b < a.kendall_high
     assert a.spearman_low < a.spearman_rho < a.spearman_high
     frame = a.to_frame()
