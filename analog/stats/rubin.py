@@ -28,7 +28,7 @@ class RubinResult:
     between
         Variance of the estimates over draws, ``B`` (divisor ``m - 1``).
     total
-        ``T = W + (1 + 1/m) B``.
+        ``T = W + (1 + 1/m) B`` (also available as ``variance``).
     se
         ``sqrt(T)``.
     df
@@ -54,6 +54,11 @@ class RubinResult:
     riv: object
     lambda_: object
     fmi: object
+
+    @property
+    def variance(self):
+        """Total variance ``T`` (same as ``total``)."""
+        return self.total
 
     def conf_int(self, alpha=0.05):
         """``estimate -+ t_df(1 - alpha/2) se`` (normal quantile where ``df`` is infinite).

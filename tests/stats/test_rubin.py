@@ -23,7 +23,7 @@ def test_hand_worked_example():
     assert got.estimate == pytest.approx(2.0)
     assert got.within == pytest.approx(0.5)
     assert got.between == pytest.approx(1.0)
-    assert got.total == pytest.approx(11 / 6)
+    assert got.total == pytest.approx(11 / 6) and got.variance == got.total
     assert got.se == pytest.approx(np.sqrt(11 / 6))
     assert got.riv == pytest.approx(8 / 3)
     assert got.lambda_ == pytest.approx(8 / 11)
