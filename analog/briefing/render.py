@@ -1,0 +1,1265 @@
+"""Turn a finished run into the HTML briefing and one page per region.
+
+Pure: :func:`build_briefing` returns the pages as text and writes nothing; the
+output writer saves them. The markup lives in jinja2 templates (autoescaped);
+this module only gathers the numbers and words the templates show.
+"""
+from __future__ import annotations
+
+import base64
+import functools
+import importlib
+import inspect
+import math
+import re
+import warnings
+from dataclasses import dataclass, field
+from importlib import resources
+from typing import Any, Mapping
+
+import jinja2
+import markupsafe
+import numpy as np
+import pandas as pd
+
+from .. import __version__
+from ..errors import AnalogWarning
+from ..figures.style import NO_DATA_COLOUR, TIER_COLOURS, TIER_NAMES
+from .references import REFERENCES
+
+__all__ = ["build_briefing", "region_page_name"]
+
+MISSING = "—"  # shown for a value that could not be computed
+INSET_DPI = 150
+
+
+# --------------------------------------------------------------------------------------------------
+# small value helpers
+# --------------------------------------------------------------------------------------------------
+def _missing(x: Any) -> bool:
+    if x is None:
+        return True
+    try:
+        return bool(pd.isna(x))
+    except (TypeError, ValueError):
+        return False
+
+
+def _float(x: Any) -> float:
+    """A float, or NaN for anything missing or not a number."""
+    if _missing(x):
+        return math.nan
+    try:
+        return float(x)
+    except (TypeError, ValueError):
+        return math.nan
+
+
+def _minus(text: str) -> str:
+    # a true minus sign reads better than a hyphen in tables
+    return text.replace("-", "\u2212") if text.startswith("-") else text
+
+
+def fmt_num(x: Any, digits: int = 2) -> str:
+    v = _float(x)
+    if math.isnan(v):
+        return MISSING
+    if math.isinf(v):
+        return "∞" if v > 0 else "\u2212∞"
+    return _minus(f"{v:.{digits}f}")
+
+
+def fmt_int(x: Any) -> str:
+    v = _float(x)
+    return MISSING if math.isnan(v) else f"{int(round(v)):,}"
+
+
+def fmt_ratio(x: Any) -> str:
+    """Odds ratios: two decimals in the usual range, three significant digits outside it."""
+    v = _float(x)
+    if math.isnan(v):
+        return MISSING
+    if math.isinf(v):
+        return "∞"
+    return f"{v:.2f}" if 0.01 <= v < 100 else f"{v:.3g}"
+
+
+def fmt_pct(x: Any) -> str:
+    v = _float(x)
+    return MISSING if math.isnan(v) else f"{100 * v:.0f}%"
+
+
+def fmt_range(low: Any, high: Any, digits: int = 2, *, fmt=None) -> str:
+    f = fmt or (lambda v: fmt_num(v, digits))
+    if math.isnan(_float(low)) and math.isnan(_float(high)):
+        return MISSING
+    return f"{f(low)} to {f(high)}"
+
+
+def sort_key(x: Any) -> str:
+    """Value for a cell's data-sort attribute: a plain number, or '' for missing (sorted last)."""
+    v = _float(x)
+    if math.isnan(v):
+        return ""
+    if math.isinf(v):
+        return "1e308" if v > 0 else "-1e308"
+    return f"{v:.10g}"
+
+
+def _text(x: Any, default: str = "") -> str:
+    return default if _missing(x) else str(x)
+
+
+def _pretty(name: str) -> str:
+    return str(name).replace("_", " ").strip()
+
+
+# --------------------------------------------------------------------------------------------------
+# structures handed to the templates
+# --------------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Tier:
+    name: str
+    colour: str
+    ink: str  # text colour on the tier colour, chosen for contrast
+    order: int
+
+
+@dataclass(frozen=True)
+class Taxon:
+    taxon_id: str
+    name: str
+    italic: bool
+
+
+@dataclass(frozen=True)
+class Cell:
+    """One table cell. ``kind`` picks the template macro: text, num, taxon, tier, interval, link."""
+
+    text: str = ""
+    sort: str | None = None
+    kind: str = "text"
+    title: str = ""
+    href: str = ""
+    taxon: Taxon | None = None
+    tier: Tier | None = None
+    bar: tuple[float, float, float] | None = None  # low, mid, high on 0..1 for an interval bar
+
+
+@dataclass(frozen=True)
+class Column:
+    label: str
+    numeric: bool = False
+    help: str = ""
+
+
+@dataclass
+class Table:
+    """A table; ``sortable`` tables get header buttons and the sorting script."""
+
+    id: str
+    caption: str
+    columns: list[Column]
+    rows: list[list[Cell]]
+    sortable: bool = True
+    sorted_by: int | None = None
+    sorted_dir: str = "ascending"
+    note: str = ""
+
+    @property
+    def empty(self) -> bool:
+        return not self.rows
+
+
+@dataclass(frozen=True)
+class FigureRef:
+    stem: str
+    src: str
+    alt: str
+    caption: str
+
+
+@dataclass
+class RegionView:
+    region_id: str
+    slug: str
+    name: str
+    flagged: bool
+    flag: str
+    indices: list[tuple[str, str, str]]  # label, value, explanation
+    by_line: list[tuple[str, str, str]]  # index, analog value, trajectory value
+    top: Table
+    present: Table
+    inset: FigureRef | None
+    n_present: int
+    n_assessed: int
+
+
+# --------------------------------------------------------------------------------------------------
+# reading the run
+# --------------------------------------------------------------------------------------------------
+def _tables(result: Any) -> dict[str, pd.DataFrame]:
+    if result is None:
+        return {}
+    try:
+        out = result.tables()
+    except Exception as exc:  # noqa: BLE001 - a broken stage result must not take the briefing down
+        warnings.warn(f"briefing: could not read the tables of {type(result).__name__} ({exc}); "
+                      "its sections say that no data are available", AnalogWarning, stacklevel=3)
+        return {}
+    return {k: v for k, v in (out or {}).items() if isinstance(v, pd.DataFrame)}
+
+
+def _contrast_ink(colour: str) -> str:
+    """Black or white text, whichever contrasts more with ``colour`` (WCAG 2 relative luminance)."""
+    hexes = colour.lstrip("#")
+    rgb = [int(hexes[i:i + 2], 16) / 255 for i in (0, 2, 4)]
+    lin = [c / 12.92 if c <= 0.03928 else ((c + 0.055) / 1.055) ** 2.4 for c in rgb]
+    lum = 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
+    on_white = (lum + 0.05) / 0.05          # contrast of black text
+    on_black = 1.05 / (lum + 0.05)          # contrast of white text
+    return "#000000" if on_white >= on_black else "#ffffff"
+
+
+TIERS = {name: Tier(name, TIER_COLOURS.get(name, NO_DATA_COLOUR), _contrast_ink(TIER_COLOURS.get(name, NO_DATA_COLOUR)),
+                    i) for i, name in enumerate(TIER_NAMES)}
+NOT_ASSESSED = Tier("not assessed", "#ffffff", "#333333", len(TIER_NAMES))
+
+
+def _tier(value: Any) -> Tier:
+    name = _text(value).strip()
+    if not name:
+        return NOT_ASSESSED
+    return TIERS.get(name, Tier(name, NO_DATA_COLOUR, _contrast_ink(NO_DATA_COLOUR), len(TIER_NAMES)))
+
+
+_OK_FLAGS = {"", "ok", "sufficient", "adequate", "good", "enough", "none", "false", "0", "nan"}
+
+
+def _flagged(value: Any) -> bool:
+    if _missing(value):
+        return False
+    return str(value).strip().lower() not in _OK_FLAGS
+
+
+_SLUG = re.compile(r"[^A-Za-z0-9._-]+")
+
+
+def region_page_name(region_id: Any, taken: set[str] | None = None) -> str:
+    """File-name-safe form of a region id (``regions/<this>.html``); unique within ``taken``."""
+    base = _SLUG.sub("_", str(region_id)).strip("._") or "region"
+    slug, n = base, 2
+    while taken is not None and slug in taken:
+        slug, n = f"{base}-{n}", n + 1
+    if taken is not None:
+        taken.add(slug)
+    return slug
+
+
+class _Run:
+    """Read-only view of a RunResult that never raises on a missing stage, table or column."""
+
+    def __init__(self, run: Any, figures: Mapping[str, Mapping[str, bytes]] | None):
+        self.run = run
+        self.study = run.study
+        self.config = self.study.config
+        self.figures = dict(figures or {})
+        self.used_figures: set[str] = set()
+        self.analog_tables = _tables(getattr(run, "analog", None))
+        self.trajectory_tables = _tables(getattr(run, "trajectory", None))
+        self.combined_tables = _tables(getattr(run, "combined", None))
+        self.regions_tables = _tables(getattr(run, "regions", None))
+        self.skipped = dict(getattr(run, "skipped", {}) or {})
+        taxa = getattr(self.study, "taxa", None)
+        self.taxa = taxa if isinstance(taxa, pd.DataFrame) else pd.DataFrame(columns=["taxon_id"])
+
+    # -- generic ---------------------------------------------------------------------------------
+    def table(self, stage: str, name: str) -> pd.DataFrame | None:
+        tables = getattr(self, f"{stage}_tables")
+        frame = tables.get(name)
+        return frame if frame is not None and len(frame.columns) else None
+
+    def params(self, section: str) -> Any:
+        sections = getattr(self.config, "sections", {}) or {}
+        return sections.get(section)
+
+    def param(self, section: str, name: str, default: Any = None) -> Any:
+        return getattr(self.params(section), name, default)
+
+    def why_missing(self, stage: str) -> str:
+        why = self.skipped.get(stage)
+        return f"This part did not run: {why}." if why else "No data are available for this part."
+
+    # -- taxa ------------------------------------------------------------------------------------
+    def taxon(self, taxon_id: Any, name: Any = None) -> Taxon:
+        tid = _text(taxon_id)
+        if not hasattr(self, "_taxon_index"):
+            t = self.taxa
+            cols = [c for c in ("taxon_id", "scientificName", "taxonRank") if c in t.columns]
+            self._taxon_index = {str(r["taxon_id"]): r for r in t[cols].to_dict("records")} if "taxon_id" in cols else {}
+        row = self._taxon_index.get(tid, {})
+        label = _text(name) or _text(row.get("scientificName")) or tid
+        rank = _text(row.get("taxonRank")).strip().lower()
+        # genus and below are printed in italics (ICZN/ICN convention)
+        italic = rank in {"genus", "subgenus", "species", "subspecies", "variety", "form"}
+        return Taxon(tid, label, italic)
+
+    # -- figures ---------------------------------------------------------------------------------
+    def figure(self, stem: str, *, alt: str, caption: str) -> FigureRef | None:
+        formats = self.figures.get(stem)
+        if not formats:
+            return None
+        self.used_figures.add(stem)
+        return _figure_ref(stem, formats, alt=alt, caption=caption)
+
+    def figures_with_prefix(self, prefix: str) -> list[str]:
+        return sorted(s for s in self.figures if s.startswith(prefix))
+
+
+def _figure_ref(stem: str, formats: Mapping[str, bytes], *, alt: str, caption: str) -> FigureRef | None:
+    if formats.get("png"):
+        mime, data = "image/png", formats["png"]
+    elif formats.get("svg"):
+        mime, data = "image/svg+xml", formats["svg"]
+    else:
+        return None
+    src = f"data:{mime};base64,{base64.b64encode(data).decode('ascii')}"
+    return FigureRef(stem, src, alt, caption)
+
+
+# --------------------------------------------------------------------------------------------------
+# sections
+# --------------------------------------------------------------------------------------------------
+def _interval_label(r: _Run) -> str:
+    level = _float(r.param("combine", "interval", math.nan))
+    return f"{100 * level:.0f}% interval" if not math.isnan(level) else "interval"
+
+
+def _tier_rule(r: _Run) -> str:
+    rule = r.param("combine", "tier_rule")
+    if rule == "quantile":
+        q = [float(x) for x in r.param("combine", "tier_quantiles", ())]
+        if len(q) == 3:
+            shares = [1 - q[0], q[0] - q[1], q[1] - q[2], q[2]]
+            return ("Tiers are relative: they cut the combined scores of the assessed taxa at the "
+                    f"{100 * q[0]:.0f}th, {100 * q[1]:.0f}th and {100 * q[2]:.0f}th percentiles, so roughly the top "
+                    f"{100 * shares[0]:.0f}% fall in “highest”, the next {100 * shares[1]:.0f}% in “high”, the next "
+                    f"{100 * shares[2]:.0f}% in “moderate” and the rest in “lower”, whatever the absolute scores.")
+    if rule == "threshold":
+        t = [float(x) for x in r.param("combine", "tier_thresholds", ())]
+        if len(t) == 3:
+            return (f"Tiers cut the combined score at {t[0]:g}, {t[1]:g} and {t[2]:g}: “highest” at or above "
+                    f"{t[0]:g}, “high” from {t[1]:g}, “moderate” from {t[2]:g}, “lower” below that.")
+    return "Tiers group taxa by their combined score, from “highest” to “lower”."
+
+
+def _risk_cells(r: _Run, row: Mapping[str, Any], ilabel: str) -> list[Cell]:
+    """Rank, taxon, tier, combined, interval, analog, trajectory, evidence."""
+    tier = _tier(row.get("tier"))
+    p, lo, hi = _float(row.get("combined_p")), _float(row.get("combined_low")), _float(row.get("combined_high"))
+    bar = None if any(math.isnan(v) for v in (p, lo, hi)) else tuple(min(max(v, 0.0), 1.0) for v in (lo, p, hi))
+    taxon = r.taxon(row.get("taxon_id"), row.get("scientificName"))
+    evidence = _text(row.get("evidence"))
+    return [
+        Cell(fmt_int(row.get("combined_rank")), sort_key(row.get("combined_rank")), "num"),
+        Cell(taxon.name, taxon.name.lower(), "taxon", taxon=taxon),
+        Cell(tier.name, str(tier.order), "tier", tier=tier),
+        Cell(fmt_num(p), sort_key(p), "num"),
+        Cell(fmt_range(lo, hi), sort_key(lo), "interval", title=f"{ilabel}: {fmt_range(lo, hi)}", bar=bar),
+        Cell(fmt_num(row.get("analog_p")), sort_key(row.get("analog_p")), "num"),
+        Cell(fmt_num(row.get("trajectory_p")), sort_key(row.get("trajectory_p")), "num"),
+        Cell(evidence or MISSING, evidence),
+    ]
+
+
+def _risk_columns(ilabel: str) -> list[Column]:
+    return [
+        Column("Rank", True, "Position in the combined ranking (1 = most vulnerable)"),
+        Column("Taxon"),
+        Column("Tier", True, "Relative vulnerability tier"),
+        Column("Combined score", True, "Combined relative vulnerability, 0 to 1"),
+        Column(ilabel.capitalize(), True, "Uncertainty of the combined score; sorts by its lower end"),
+        Column("Analog score", True, "How taxa like this fared in past warming intervals"),
+        Column("Trajectory score", True, "From the lineage's own occupancy history"),
+        Column("Evidence", False, "Which lines of evidence the score rests on"),
+    ]
+
+
+def _ordered_rankings(rankings: pd.DataFrame) -> pd.DataFrame:
+    if "combined_rank" in rankings.columns:
+        order = pd.to_numeric(rankings["combined_rank"], errors="coerce")
+        return rankings.assign(_order=order).sort_values("_order", na_position="last", kind="mergesort")
+    return rankings
+
+
+def _ranking_table(r: _Run, rankings: pd.DataFrame, *, table_id: str, caption: str,
+                   extra: pd.Series | None = None, extra_label: str = "") -> Table:
+    ilabel = _interval_label(r)
+    columns = _risk_columns(ilabel)
+    if extra is not None:
+        columns.append(Column(extra_label, True))
+    rows = []
+    for idx, row in _ordered_rankings(rankings).iterrows():
+        cells = _risk_cells(r, row, ilabel)
+        if extra is not None:
+            v = extra.get(idx)
+            cells.append(Cell(fmt_int(v), sort_key(v), "num"))
+        rows.append(cells)
+    return Table(table_id, caption, columns, rows, sorted_by=0, sorted_dir="ascending")
+
+
+def _rankings(r: _Run) -> pd.DataFrame | None:
+    return r.table("combined", "rankings.csv")
+
+
+def _assessed(rankings: pd.DataFrame) -> pd.DataFrame:
+    if "evidence" in rankings.columns:
+        return rankings[rankings["evidence"].astype(str) != "none"]
+    return rankings
+
+
+def _comparison_stat(r: _Run, name: str) -> dict | None:
+    comp = r.table("combined", "comparison.csv")
+    if comp is None or "statistic" not in comp.columns:
+        return None
+    hit = comp[comp["statistic"].astype(str) == name]
+    if not len(hit):
+        return None
+    row = hit.iloc[0]
+    est = _float(row.get("estimate"))
+    if math.isnan(est):
+        return None
+    return {"estimate": est, "low": _float(row.get("low")), "high": _float(row.get("high")),
+            "note": _text(row.get("note"))}
+
+
+def _agreement_words(tau: dict | None, rho: dict | None) -> dict:
+    """Plain-words reading of the rank agreement (rule-of-thumb bands on |tau-b|, common practice)."""
+    if tau is None and rho is None:
+        return {"available": False}
+    main = tau or rho
+    est = main["estimate"]
+    size = abs(est)
+    if size < 0.1:
+        strength = "hardly at all"
+    elif size < 0.3:
+        strength = "weakly"
+    elif size < 0.5:
+        strength = "moderately"
+    else:
+        strength = "strongly"
+    direction = "agree" if est >= 0 else "run in opposite directions"
+    lo, hi = main["low"], main["high"]
+    if math.isnan(lo) or math.isnan(hi):
+        certainty = "No interval could be computed for this statistic."
+    elif lo <= 0 <= hi:
+        certainty = ("Its interval includes zero, so on these data the agreement cannot be told apart from "
+                     "chance.")
+    else:
+        certainty = "Its interval excludes zero."
+    if est >= 0 and size < 0.1:
+        headline = "The two lines of evidence hardly agree at all"
+    elif est >= 0:
+        headline = f"The two lines of evidence {strength} agree"
+    else:
+        headline = f"The two lines of evidence {direction} ({strength})"
+    return {"available": True, "headline": headline, "certainty": certainty,
+            "tau": tau, "rho": rho}
+
+
+def _topk_rows(r: _Run) -> list[dict]:
+    comp = r.table("combined", "comparison.csv")
+    if comp is None or "statistic" not in comp.columns:
+        return []
+    out = []
+    for row in comp.to_dict("records"):
+        stat = str(row.get("statistic"))
+        if stat.lower().startswith("top"):
+            out.append({"statistic": _pretty(stat), "estimate": _float(row.get("estimate")),
+                        "note": _text(row.get("note"))})
+    return out
+
+
+_STAT_LABELS = {"kendall_tau_b": "Kendall's tau-b", "spearman_rho": "Spearman's rho"}
+
+
+def _comparison_table(r: _Run) -> Table:
+    comp = r.table("combined", "comparison.csv")
+    rows = []
+    if comp is not None and "statistic" in comp.columns:
+        for row in comp.to_dict("records"):
+            stat = str(row.get("statistic"))
+            rows.append([
+                Cell(_STAT_LABELS.get(stat, _pretty(stat))),
+                Cell(fmt_num(row.get("estimate")), sort_key(row.get("estimate")), "num"),
+                Cell(fmt_range(row.get("low"), row.get("high")), sort_key(row.get("low")), "num"),
+                Cell(_text(row.get("note"))),
+            ])
+    return Table("comparison", "How far the analog and trajectory rankings agree",
+                 [Column("Statistic"), Column("Estimate", True), Column("Interval", True), Column("Note")],
+                 rows, sortable=False)
+
+
+def _skill_line(r: _Run) -> dict:
+    analog = _float(getattr(getattr(r.run, "analog", None), "skill", math.nan))
+    traj = _float(getattr(getattr(r.run, "trajectory", None), "skill", math.nan))
+    combined = getattr(r.run, "combined", None)
+    weights = getattr(combined, "weights", None) or {}
+    skill = getattr(combined, "skill", None) or {}
+    if math.isnan(analog):
+        analog = _float(skill.get("analog"))
+    if math.isnan(traj):
+        traj = _float(skill.get("trajectory"))
+    source = {"skill": "set from each line's measured skill",
+              "user": "set in study.toml",
+              "single line": "only one line of evidence was available"}.get(str(weights.get("source")),
+                                                                           _text(weights.get("source")))
+    return {"analog": analog, "trajectory": traj,
+            "has_weights": not math.isnan(_float(weights.get("analog"))),
+            "w_analog": _float(weights.get("analog")), "w_trajectory": _float(weights.get("trajectory")),
+            "source": source}
+
+
+def _summary(r: _Run, rankings: pd.DataFrame | None, regions: list[RegionView]) -> dict:
+    out: dict[str, Any] = {"ranked": rankings is not None}
+    if rankings is not None:
+        assessed = _assessed(rankings)
+        ev = rankings["evidence"].astype(str).value_counts() if "evidence" in rankings.columns else pd.Series(dtype=int)
+        out["n_taxa"] = len(rankings)
+        out["n_assessed"] = len(assessed)
+        out["n_both"] = int(ev.get("both", 0))
+        out["n_analog_only"] = int(ev.get("analog only", 0))
+        out["n_trajectory_only"] = int(ev.get("trajectory only", 0))
+        out["n_none"] = int(ev.get("none", 0))
+        tiers = assessed["tier"].astype(str).value_counts() if "tier" in assessed.columns else pd.Series(dtype=int)
+        out["tier_counts"] = [(TIERS[n], int(tiers.get(n, 0))) for n in TIER_NAMES]
+        top = _ordered_rankings(assessed).head(5)
+        out["top"] = [{"taxon": r.taxon(row.get("taxon_id"), row.get("scientificName")),
+                       "p": fmt_num(row.get("combined_p")),
+                       "range": fmt_range(row.get("combined_low"), row.get("combined_high")),
+                       "tier": _tier(row.get("tier"))} for row in top.to_dict("records")]
+    ok = [g for g in regions if not g.flagged]
+    out["n_regions"] = len(regions)
+    out["flagged_regions"] = [g for g in regions if g.flagged]
+    summary = r.table("regions", "region_summary.csv")
+    top_regions = []
+    if summary is not None and "expected_losses" in summary.columns and ok:
+        by_id = {str(row["region_id"]): row for row in summary.to_dict("records")}
+        ranked = sorted(ok, key=lambda g: (-_nan_low(by_id.get(g.region_id, {}).get("expected_losses")), g.name))
+        for g in ranked[:3]:
+            row = by_id.get(g.region_id, {})
+            top_regions.append({"region": g, "losses": fmt_num(row.get("expected_losses"), 1),
+                                "range": fmt_range(row.get("expected_losses_low"), row.get("expected_losses_high"), 1),
+                                "n_taxa": fmt_int(row.get("n_taxa")), "mean": fmt_num(row.get("mean_combined_p"))})
+    out["top_regions"] = top_regions
+    out["agreement"] = _agreement_words(_comparison_stat(r, "kendall_tau_b"), _comparison_stat(r, "spearman_rho"))
+    out["topk"] = _topk_rows(r)
+    out["skill"] = _skill_line(r)
+    out["hindcast"] = _hindcast_words(r)
+    return out
+
+
+def _nan_low(x: Any) -> float:
+    v = _float(x)
+    return -math.inf if math.isnan(v) else v
+
+
+# -- regions -----------------------------------------------------------------------------------------
+_INDEX_LABELS = [
+    ("n_taxa", "Living taxa recorded here", "taxa with modern records in this region", fmt_int),
+    ("n_records", "Modern occurrence records", "records assigned to this region", fmt_int),
+    ("expected_losses", "Expected losses (sum of scores)",
+     "sum of the combined scores of the taxa present; a comparative index between regions, not a count of "
+     "taxa that will disappear", lambda v: fmt_num(v, 1)),
+    ("mean_combined_p", "Mean combined score", "average relative vulnerability of the taxa present", fmt_num),
+    ("n_top_tier", "Taxa in the highest tier", "present here and in the highest tier overall", fmt_int),
+    ("diversity_loss", "Expected loss of taxonomic diversity",
+     "expected share of the regional rank tree's branch length lost (after Faith 2008)", fmt_num),
+]
+_LINE_INDICES = [("expected_losses", "Expected losses", lambda v: fmt_num(v, 1)),
+                 ("mean_p", "Mean score", fmt_num), ("mean_combined_p", "Mean score", fmt_num),
+                 ("n_top_tier", "Taxa in the highest tier", fmt_int)]
+
+
+def _region_inset(r: _Run, region_id: str, name: str) -> FigureRef | None:
+    try:
+        maps = importlib.import_module("analog.figures.maps")
+    except ModuleNotFoundError:
+        return None
+    fn = getattr(maps, "region_inset", None)
+    if fn is None:
+        return None
+    from ..output import render_figure
+    import matplotlib.pyplot as plt
+
+    accepted = inspect.signature(fn).parameters
+    options = {}
+    if "context" in accepted:
+        options["context"] = getattr(r.study, "context", None)
+    if "params" in accepted and r.params("figures") is not None:
+        options["params"] = r.params("figures")
+    try:
+        fig = fn(region_id, r.run.regions, **options)
+    except Exception as exc:  # noqa: BLE001 - one bad inset must not stop the briefing
+        warnings.warn(f"briefing: the map inset of region {region_id!r} could not be drawn ({type(exc).__name__}: "
+                      f"{exc}); the page says so instead", AnalogWarning, stacklevel=2)
+        return None
+    if fig is None:
+        return None
+    try:
+        png = render_figure(fig, "png", dpi=INSET_DPI)
+    finally:
+        plt.close(fig)
+    return _figure_ref(f"inset_{region_id}", {"png": png},
+                       alt=f"Map of {name} within the study area, shaded by combined relative vulnerability.",
+                       caption=f"{name} (outlined) within the study area.")
+
+
+def _regions(r: _Run, rankings: pd.DataFrame | None, *, draw_insets: bool) -> list[RegionView]:
+    summary = r.table("regions", "region_summary.csv")
+    if summary is None or "region_id" not in summary.columns:
+        return []
+    presence = r.table("regions", "region_taxa.csv")
+    if presence is not None and "present" in presence.columns:
+        present_mask = presence["present"].map(lambda v: str(v).strip().lower() in {"true", "1", "yes"})
+        presence = presence[present_mask]
+    taken: set[str] = set()
+    views = []
+    rows = summary.to_dict("records")
+    rows.sort(key=lambda row: (_text(row.get("name"), str(row["region_id"])).lower(), str(row["region_id"])))
+    for row in rows:
+        rid = str(row["region_id"])
+        name = _text(row.get("name")) or rid
+        slug = region_page_name(rid, taken)
+        flag = _text(row.get("data_flag"))
+        flagged = _flagged(row.get("data_flag"))
+        indices = []
+        for col, label, why, f in _INDEX_LABELS:
+            if col not in row:
+                continue
+            value = f(row.get(col))
+            span = fmt_range(row.get("expected_losses_low"), row.get("expected_losses_high"), 1)
+            if col == "expected_losses" and span != MISSING:
+                value = f"{value} ({span})"
+            indices.append((label, value, why))
+        by_line = []
+        seen = set()
+        for suffix, label, f in _LINE_INDICES:
+            a, t = row.get(f"analog_{suffix}"), row.get(f"trajectory_{suffix}")
+            if (f"analog_{suffix}" in row or f"trajectory_{suffix}" in row) and label not in seen:
+                seen.add(label)
+                by_line.append((label, f(a), f(t)))
+        ids = presence.loc[presence["region_id"].astype(str) == rid] if presence is not None else None
+        if rankings is not None and ids is not None and "taxon_id" in rankings.columns:
+            counts = ids.groupby(ids["taxon_id"].astype(str))["n_records"].sum() if "n_records" in ids.columns \
+                else ids.groupby(ids["taxon_id"].astype(str)).size()
+            here = rankings[rankings["taxon_id"].astype(str).isin(set(counts.index))]
+            extra = pd.Series(here["taxon_id"].astype(str).map(counts).to_numpy(), index=here.index)
+            present = _ranking_table(r, here, table_id=f"taxa-{slug}",
+                                     caption=f"Living taxa recorded in {name}, in combined-rank order",
+                                     extra=extra, extra_label="Records here")
+            keep = [0, 1, 2, 3, 4, 7, 8]  # rank, taxon, tier, combined, interval, evidence, records here
+            top_rows = [[cells[i] for i in keep] for cells in present.rows if cells[2].tier is not NOT_ASSESSED][:10]
+            top = Table(f"top-{slug}", f"Most vulnerable taxa recorded in {name} (first {len(top_rows)})",
+                        [present.columns[i] for i in keep], top_rows, sortable=False)
+            n_present, n_assessed = len(here), len(_assessed(here))
+        else:
+            present = Table(f"taxa-{slug}", f"Living taxa recorded in {name}", [], [])
+            top = Table(f"top-{slug}", f"Most vulnerable taxa recorded in {name}", [], [], sortable=False)
+            n_present = n_assessed = 0
+        inset = _region_inset(r, rid, name) if draw_insets else None
+        views.append(RegionView(rid, slug, name, flagged, flag, indices, by_line, top, present, inset,
+                                n_present, n_assessed))
+    return views
+
+
+def _region_overview(r: _Run, regions: list[RegionView]) -> Table:
+    summary = r.table("regions", "region_summary.csv")
+    rows = []
+    if summary is not None:
+        by_id = {str(row["region_id"]): row for row in summary.to_dict("records")}
+        for g in regions:
+            row = by_id[g.region_id]
+            rows.append([
+                Cell(g.name, g.name.lower(), "link", href=f"#region-{g.slug}"),
+                Cell(fmt_int(row.get("n_taxa")), sort_key(row.get("n_taxa")), "num"),
+                Cell(fmt_int(row.get("n_records")), sort_key(row.get("n_records")), "num"),
+                Cell(fmt_num(row.get("expected_losses"), 1), sort_key(row.get("expected_losses")), "num"),
+                Cell(fmt_range(row.get("expected_losses_low"), row.get("expected_losses_high"), 1),
+                     sort_key(row.get("expected_losses_low")), "num"),
+                Cell(fmt_num(row.get("mean_combined_p")), sort_key(row.get("mean_combined_p")), "num"),
+                Cell(fmt_int(row.get("n_top_tier")), sort_key(row.get("n_top_tier")), "num"),
+                Cell(g.flag if g.flagged else "enough data", "1" if g.flagged else "0",
+                     "flag" if g.flagged else "text"),
+            ])
+    cols = [Column("Region"), Column("Taxa", True), Column("Records", True),
+            Column("Expected losses", True, "Sum of combined scores of the taxa present"),
+            Column("Interval", True, "Sorts by its lower end"),
+            Column("Mean score", True), Column("Highest tier", True, "Taxa present in the highest tier"),
+            Column("Data", False, "Whether the region has enough records to judge")]
+    return Table("regions-overview", "Regions at a glance", cols, rows)
+
+
+# -- analog --------------------------------------------------------------------------------------
+def _trait_label(r: _Run, term: str) -> str:
+    """'depth_zone[T.slope]'-like terms in the trait's display name, where the trait is known."""
+    traits = getattr(r.config, "traits", {}) or {}
+    for name in sorted(traits, key=len, reverse=True):
+        if term.startswith(name):
+            rest = term[len(name):].strip("[]:=._ ")
+            rest = re.sub(r"^T\.", "", rest).strip("[]")
+            label = traits[name].display
+            label = label[:1].upper() + label[1:]
+            return f"{label}: {rest}" if rest else label
+    return _pretty(term)
+
+
+def _pooling(r: _Run) -> dict:
+    pooled = r.table("analog", "pooling.csv")
+    if pooled is None:
+        return {"table": None, "clear_terms": [], "unclear_terms": []}
+    rows, clear, unclear = [], [], []
+    for row in pooled.to_dict("records"):
+        est, lo, hi = _float(row.get("estimate")), _float(row.get("ci_low")), _float(row.get("ci_high"))
+        orr, olo, ohi = math.exp(est) if not math.isnan(est) else math.nan, \
+            math.exp(lo) if not math.isnan(lo) else math.nan, math.exp(hi) if not math.isnan(hi) else math.nan
+        term = _trait_label(r, _text(row.get("term")))
+        i2 = _float(row.get("i2"))
+        i2 = i2 / 100 if i2 > 1 else i2  # accept I² as a share or a percentage
+        rows.append([
+            Cell(term, term.lower()),
+            Cell(fmt_ratio(orr), sort_key(orr), "num"),
+            Cell(fmt_range(olo, ohi, fmt=fmt_ratio), sort_key(olo), "num"),
+            Cell(fmt_num(est), sort_key(est), "num"),
+            Cell(fmt_num(row.get("tau2"), 3), sort_key(row.get("tau2")), "num"),
+            Cell(fmt_pct(i2), sort_key(i2), "num"),
+            Cell(fmt_num(row.get("q")), sort_key(row.get("q")), "num"),
+            Cell(fmt_num(row.get("q_p"), 3), sort_key(row.get("q_p")), "num"),
+            Cell(fmt_int(row.get("k")), sort_key(row.get("k")), "num"),
+            Cell(_text(row.get("method"))),
+        ])
+        if not (math.isnan(lo) or math.isnan(hi)):
+            item = {"term": term, "or": fmt_ratio(orr), "range": fmt_range(olo, ohi, fmt=fmt_ratio)}
+            if lo > 0:
+                clear.append({**item, "direction": "more often lost"})
+            elif hi < 0:
+                clear.append({**item, "direction": "less often lost"})
+            else:
+                unclear.append(item)
+    cols = [Column("Trait class"), Column("Pooled odds ratio", True, "Odds of loss against the reference class"),
+            Column("Interval", True, "Confidence interval of the odds ratio; sorts by its lower end"),
+            Column("Log odds", True), Column("tau²", True, "Between-interval variance of the log odds ratio"),
+            Column("I²", True, "Share of the spread due to real differences between intervals"),
+            Column("Q", True, "Cochran's heterogeneity statistic"), Column("p (Q)", True),
+            Column("Intervals", True, "Number of warming intervals pooled"), Column("Method")]
+    table = Table("pooled", "Pooled odds ratios of loss across warming intervals", cols, rows)
+    return {"table": table, "clear_terms": clear, "unclear_terms": unclear}
+
+
+def _interval_names(r: _Run) -> dict[str, str]:
+    iv = getattr(r.study, "intervals", None)
+    if isinstance(iv, pd.DataFrame) and {"interval_id", "name"} <= set(iv.columns):
+        return {str(a): _text(b) for a, b in zip(iv["interval_id"], iv["name"])}
+    return {}
+
+
+def _loo(r: _Run) -> Table | None:
+    loo = r.table("analog", "leave_one_out.csv")
+    if loo is None:
+        return None
+    names = _interval_names(r)
+    rows = []
+    for row in loo.to_dict("records"):
+        iid = _text(row.get("interval_id"))
+        label = names.get(iid) or iid
+        rows.append([Cell(label, label.lower()),
+                     Cell(fmt_num(row.get("auc")), sort_key(row.get("auc")), "num"),
+                     Cell(fmt_int(row.get("n_at_risk")), sort_key(row.get("n_at_risk")), "num"),
+                     Cell(fmt_int(row.get("n_lost")), sort_key(row.get("n_lost")), "num")])
+    cols = [Column("Held-out interval"), Column("AUC", True, "0.5 = no better than chance, 1 = perfect"),
+            Column("Taxa at risk", True), Column("Taxa lost", True)]
+    return Table("loo", "Leave-one-interval-out: how well the other intervals predict each one's losses", cols, rows)
+
+
+def _interval_weights(r: _Run) -> Table | None:
+    w = getattr(getattr(r.run, "analog", None), "interval_weights", None)
+    if not isinstance(w, pd.DataFrame) or "interval_id" not in w.columns:
+        return None
+    names = _interval_names(r)
+    rows = []
+    for row in w.to_dict("records"):
+        iid = _text(row.get("interval_id"))
+        label = names.get(iid) or iid
+        rows.append([Cell(label, label.lower()),
+                     Cell(fmt_num(row.get("warming_c"), 1), sort_key(row.get("warming_c")), "num"),
+                     Cell(fmt_num(row.get("weight"), 3), sort_key(row.get("weight")), "num")])
+    cols = [Column("Warming interval"), Column("Estimated warming (°C)", True),
+            Column("Weight", True, "Weight given to this interval for the scenario")]
+    return Table("interval-weights", "How much each past interval counts for the scenario", cols, rows)
+
+
+# -- trajectory -------------------------------------------------------------------------------------
+_MODEL_LABELS = {"rise_and_fall": "rise-and-fall", "rise_fall": "rise-and-fall", "hat": "rise-and-fall",
+                 "random_walk": "random walk", "rw": "random walk", "drift": "random walk with drift",
+                 "random_walk_drift": "random walk with drift", "stasis": "stasis",
+                 "model_average": "model average", "average": "model average"}
+
+
+def _model_label(name: Any) -> str:
+    key = _text(name).strip()
+    return _MODEL_LABELS.get(key.lower(), _pretty(key).replace(" and ", "-and-") if "rise" in key.lower()
+                             else _pretty(key))
+
+
+def _hindcast_rows(r: _Run) -> list[dict]:
+    hc = r.table("trajectory", "hindcast.csv")
+    if hc is None or "model" not in hc.columns:
+        return []
+    return [{"model": _model_label(row.get("model")), "raw": _text(row.get("model")), "auc": _float(row.get("auc")),
+             "low": _float(row.get("auc_low")), "high": _float(row.get("auc_high")), "brier": _float(row.get("brier")),
+             "n_lost": row.get("n_lost"), "n_survived": row.get("n_survived")} for row in hc.to_dict("records")]
+
+
+def _hindcast_table(r: _Run) -> Table | None:
+    rows = _hindcast_rows(r)
+    if not rows:
+        return None
+    cells = [[Cell(h["model"], h["model"]), Cell(fmt_num(h["auc"]), sort_key(h["auc"]), "num"),
+              Cell(fmt_range(h["low"], h["high"]), sort_key(h["low"]), "num"),
+              Cell(fmt_num(h["brier"], 3), sort_key(h["brier"]), "num"),
+              Cell(fmt_int(h["n_lost"]), sort_key(h["n_lost"]), "num"),
+              Cell(fmt_int(h["n_survived"]), sort_key(h["n_survived"]), "num")] for h in rows]
+    cols = [Column("Reading (model)"), Column("AUC", True, "0.5 = no better than chance, 1 = perfect"),
+            Column("Interval", True, "Bootstrap interval of the AUC"),
+            Column("Brier score", True, "Mean squared error of the predicted probabilities; lower is better"),
+            Column("Lost", True, "Taxa later lost, in the hindcast"), Column("Survived", True)]
+    return Table("hindcast", "Hindcast: each reading scored on truncated histories of taxa whose fate is known",
+                 cols, cells)
+
+
+def _overlap(a: dict, b: dict) -> bool:
+    if any(math.isnan(v) for v in (a["low"], a["high"], b["low"], b["high"])):
+        return True
+    return a["low"] <= b["high"] and b["low"] <= a["high"]
+
+
+def _auc_text(h: dict) -> str:
+    return f"{fmt_num(h['auc'])} (interval {fmt_range(h['low'], h['high'])})"
+
+
+def _hindcast_words(r: _Run) -> dict:
+    """Which reading predicted better in the hindcast, in words."""
+    rows = [h for h in _hindcast_rows(r) if not math.isnan(h["auc"])]
+    if not rows:
+        return {"available": False}
+    hat = [h for h in rows if "rise" in h["raw"].lower() or h["model"] == "rise-and-fall"]
+    walk = [h for h in rows if "walk" in h["model"]]
+    best = max(rows, key=lambda h: h["auc"])
+    out: dict[str, Any] = {"available": True, "best_text": f"{best['model']}, AUC {_auc_text(best)}",
+                           "winner": None,
+                           "chance": not math.isnan(best["low"]) and best["low"] <= 0.5}
+    if hat and walk:
+        h = max(hat, key=lambda x: x["auc"])
+        w = max(walk, key=lambda x: x["auc"])
+        winner, loser = (h, w) if h["auc"] >= w["auc"] else (w, h)
+        out.update(winner=winner["model"], loser=loser["model"], winner_auc=_auc_text(winner),
+                   loser_auc=_auc_text(loser), separated=not _overlap(h, w))
+    return out
+
+
+def _noise_null(r: _Run) -> dict:
+    nn = r.table("trajectory", "noise_null.csv")
+    if nn is None:
+        return {"table": None, "n_taxa": 0}
+    level_col = next((c for c in ("level", "scope", "row_type", "kind") if c in nn.columns), None)
+    if level_col is not None:
+        mask = nn[level_col].astype(str).str.lower().isin({"dataset", "data set", "all", "overall", "pooled"})
+    elif "taxon_id" in nn.columns:
+        mask = nn["taxon_id"].isna()
+    else:
+        mask = pd.Series(True, index=nn.index)
+    ds, per_taxon = nn[mask], nn[~mask]
+    ds = ds.dropna(axis=1, how="all")
+    skip = {"taxon_id", level_col}
+    cols = [c for c in ds.columns if c not in skip]
+    rows = []
+    for row in ds.to_dict("records"):
+        cells = []
+        for c in cols:
+            v = row.get(c)
+            if isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, bool):
+                cells.append(Cell(fmt_num(v, 3), sort_key(v), "num"))
+            else:
+                cells.append(Cell(_pretty(_text(v))))
+        rows.append(cells)
+    table = Table("noise-null", "Completed trajectories against the noise null (whole data set)",
+                  [Column(_pretty(c).capitalize(), pd.api.types.is_numeric_dtype(ds[c])) for c in cols], rows,
+                  sortable=False) if rows else None
+    return {"table": table, "n_taxa": int(per_taxon["taxon_id"].nunique()) if "taxon_id" in per_taxon.columns else 0}
+
+
+def _preferred_counts(r: _Run) -> list[tuple[str, int]]:
+    tr = r.table("trajectory", "trajectory_risk.csv")
+    if tr is None or "preferred_model" not in tr.columns:
+        return []
+    counts = tr["preferred_model"].dropna().map(_model_label).value_counts()
+    return sorted(((str(k), int(v)) for k, v in counts.items()), key=lambda kv: (-kv[1], kv[0]))
+
+
+# -- disagreements ----------------------------------------------------------------------------------
+def _disagreements(r: _Run) -> Table | None:
+    d = r.table("combined", "disagreements.csv")
+    if d is None:
+        return None
+    rows = []
+    for row in d.to_dict("records"):
+        taxon = r.taxon(row.get("taxon_id"), row.get("scientificName"))
+        rows.append([
+            Cell(taxon.name, taxon.name.lower(), "taxon", taxon=taxon),
+            Cell(fmt_int(row.get("analog_rank")), sort_key(row.get("analog_rank")), "num"),
+            Cell(fmt_int(row.get("trajectory_rank")), sort_key(row.get("trajectory_rank")), "num"),
+            Cell(fmt_int(row.get("rank_difference")), sort_key(row.get("rank_difference")), "num"),
+            Cell(_pretty(_text(row.get("higher_on"))) or MISSING),
+            Cell(fmt_num(row.get("analog_p")), sort_key(row.get("analog_p")), "num"),
+            Cell(fmt_num(row.get("trajectory_p")), sort_key(row.get("trajectory_p")), "num"),
+            Cell(_text(row.get("analog_drivers")) or MISSING),
+            Cell(_model_label(row.get("trajectory_driver")) if _text(row.get("trajectory_driver")) else MISSING),
+        ])
+    cols = [Column("Taxon"), Column("Analog rank", True), Column("Trajectory rank", True),
+            Column("Rank difference", True), Column("Ranked higher by"), Column("Analog score", True),
+            Column("Trajectory score", True), Column("What drives the analog score"),
+            Column("Trajectory reading")]
+    return Table("disagreements", "Taxa whose two rankings differ most", cols, rows, sorted_by=None)
+
+
+def _names(r: _Run, ids: Any) -> str:
+    """'t1;t4' -> 'Alpha marina, Delta ...' (taxon ids listed in one cell, ';' or ',' separated)."""
+    parts = [p.strip() for p in re.split(r"[;,]", _text(ids)) if p.strip()]
+    return ", ".join(r.taxon(p).name for p in parts) or MISSING
+
+
+def _sensitivity(r: _Run) -> dict:
+    s = r.table("combined", "sensitivity.csv")
+    if s is None or "jaccard_vs_default" not in s.columns or not len(s):
+        return {"available": False}
+    jac = pd.to_numeric(s["jaccard_vs_default"], errors="coerce")
+    k = _float(s["k"].iloc[0]) if "k" in s.columns else math.nan
+    lowest = s.loc[jac.idxmin()] if jac.notna().any() else None
+    rows = [[Cell(fmt_num(row.get("analog_weight")), sort_key(row.get("analog_weight")), "num"),
+             Cell(fmt_num(row.get("jaccard_vs_default")), sort_key(row.get("jaccard_vs_default")), "num"),
+             Cell(fmt_int(row.get("n_shared")), sort_key(row.get("n_shared")), "num"),
+             Cell(_names(r, row.get("entered"))), Cell(_names(r, row.get("left")))] for row in s.to_dict("records")]
+    cols = [Column("Analog weight", True), Column("Overlap with default top set (Jaccard)", True),
+            Column("Shared taxa", True), Column("Entered the top set"), Column("Left the top set")]
+    return {"available": True, "k": fmt_int(k), "lowest": fmt_num(jac.min()),
+            "at": fmt_num(lowest.get("analog_weight")) if lowest is not None else MISSING,
+            "table": Table("sensitivity", "The top set as the weight given to the analog line moves from 0 to 1",
+                           cols, rows, sortable=False)}
+
+
+# -- methods and provenance --------------------------------------------------------------------------
+def _methods(r: _Run) -> list[dict]:
+    warming = _float(getattr(r.config, "warming_c", math.nan))
+    ilabel = _interval_label(r)
+    methods = [
+        {"title": "Past warming intervals and fates",
+         "text": ("Fossil taxa are followed through a catalogue of past episodes of volcanic CO₂ release and "
+                  "warming. A taxon is at risk in an interval when its range reaches into it and lost when its "
+                  "last occurrence falls inside it (boundary-crosser logic). Occurrence ages are ranges; point "
+                  "ages are drawn within them many times and the results combined with Rubin's rules, so age "
+                  "uncertainty widens the intervals."),
+         "refs": ["foote2000", "rubin1987"]},
+        {"title": "Selectivity",
+         "text": ("Within each interval, loss is modelled by logistic regression on trait classes with Firth's "
+                  "penalized likelihood, which gives finite estimates in the small and separated samples "
+                  "typical of fossil data, with profile penalized-likelihood intervals."),
+         "refs": ["firth1993", "heinze2002"]},
+        {"title": "Pooling across intervals",
+         "text": ("Per-interval log odds ratios are pooled by random-effects meta-analysis, with between-interval "
+                  "variance tau², Cochran's Q and I²; with few intervals the Hartung–Knapp–Sidik–Jonkman "
+                  f"adjustment is available. Intervals are weighted by how close their warming was to the "
+                  f"scenario ({'+' + format(warming, 'g') + ' °C' if not math.isnan(warming) else 'as set'}). "
+                  "Leave-one-interval-out checks predict each interval's losses from the others (AUC)."),
+         "refs": ["dersimonian1986", "hartung2001", "sidik2002", "higgins2002", "hanley1982", "ipcc2021"]},
+        {"title": "Matching living taxa to fossil relatives",
+         "text": ("Each living taxon is matched to fossil relatives by taxonomic distance on the rank tree "
+                  "combined with Gower's mixed-type trait distance (Podani's extension for ordinal traits). Its "
+                  "analog score combines the pooled trait model with its relatives' observed fates; intervals "
+                  "come from a bootstrap over fossil taxa."),
+         "refs": ["gower1971", "podani1999", "efron1993"]},
+        {"title": "Occupancy trajectories",
+         "text": ("For each lineage, occupancy per time bin is the share of sampled units (grid cells or "
+                  "localities) where it was found. Stasis, random walk, random walk with drift and rise-and-fall "
+                  "models are fitted to logit occupancy and compared by AICc and Akaike weights."),
+         "refs": ["foote2007", "liow2007", "hurvich1989", "burnham2002"]},
+        {"title": "Trajectory score",
+         "text": ("For living taxa, the chance of reaching a quasi-extinction threshold within a geological horizon "
+                  "uses the diffusion approximation (first passage of Brownian motion with drift) for the "
+                  "random-walk models and the projected curve for rise-and-fall, averaged over models with "
+                  "Akaike weights and a parametric bootstrap for uncertainty."),
+         "refs": ["lande1988", "dennis1991", "burnham2002"]},
+        {"title": "Noise null and hindcast",
+         "text": ("A random walk pinned to zero at its start and end (a Brownian excursion) draws hat shapes by "
+                  "itself; completed trajectories are compared with simulated excursions. The hindcast truncates "
+                  "histories of taxa whose fate is known and scores each reading by AUC and Brier score."),
+         "refs": ["hanley1982", "brier1950"]},
+        {"title": "Combined ranking and comparison",
+         "text": ("The two scores are pooled on the logit scale with weights from each line's measured skill (or "
+                  f"as set by the user); the {ilabel} comes from propagating both lines' bootstrap draws. Rank "
+                  "agreement is measured by Kendall's tau-b and Spearman's rho with bootstrap intervals."),
+         "refs": ["kendall1945", "spearman1904", "efron1993"]},
+        {"title": "Regions",
+         "text": ("Modern occurrence records are assigned to the region polygons. Per region: taxa present, "
+                  "expected losses (the sum of combined scores, with an interval), mean score, taxa in the "
+                  "highest tier, and the expected loss of taxonomic diversity on the rank tree."),
+         "refs": ["faith2008"]},
+    ]
+    chart = _chart_version()
+    methods.append({"title": "Time scale",
+                    "text": ("Stage names resolve to numeric ages through the bundled ICS International "
+                             "Chronostratigraphic Chart" + (f", version {chart}." if chart else
+                                                             " (version not recorded in this build).")),
+                    "refs": ["cohen2013"]})
+    for m in methods:
+        m["refs"] = [(k, REFERENCES[k][0]) for k in m["refs"]]
+    return methods
+
+
+def _chart_version() -> str:
+    try:
+        ref = importlib.import_module("analog.reference")
+    except ModuleNotFoundError:
+        return ""
+    return _text(getattr(ref, "CHART_VERSION", ""))
+
+
+def _settings(r: _Run) -> list[tuple[str, list[tuple[str, str]]]]:
+    out = []
+    sections = getattr(r.config, "sections", {}) or {}
+    for name in sorted(sections):
+        p = sections[name]
+        try:
+            values = p.to_dict()
+        except AttributeError:
+            continue
+        out.append((name, [(k, _setting_text(v)) for k, v in values.items()]))
+    return out
+
+
+def _setting_text(v: Any) -> str:
+    if isinstance(v, (list, tuple)):
+        return ", ".join(_setting_text(x) for x in v)
+    if v is None:
+        return "not set"
+    if isinstance(v, bool):
+        return "yes" if v else "no"
+    return str(v)
+
+
+def _provenance(r: _Run) -> dict:
+    files = []
+    for f in getattr(r.study, "files", []) or []:
+        path = getattr(f, "path", "")
+        name = getattr(path, "name", None) or str(path)
+        files.append({"role": _pretty(getattr(f, "role", "")), "name": name,
+                      "sha256": _text(getattr(f, "sha256", "")), "rows": fmt_int(getattr(f, "rows", None))})
+    dropped = getattr(r.study, "dropped", None)
+    drops = []
+    if isinstance(dropped, pd.DataFrame):
+        for row in dropped.to_dict("records"):
+            ex = row.get("examples")
+            if isinstance(ex, (list, tuple, np.ndarray)):
+                ex = ", ".join(str(e) for e in ex)
+            drops.append({"role": _pretty(_text(row.get("role"))), "reason": _text(row.get("reason")),
+                          "count": fmt_int(row.get("count")), "examples": _text(ex)})
+    warn = list(getattr(r.study, "warnings", []) or []) + [w for w in getattr(r.run, "warnings", []) or []]
+    seen, unique = set(), []
+    for w in warn:
+        if str(w) not in seen:
+            seen.add(str(w))
+            unique.append(str(w))
+    unassigned = getattr(getattr(r.run, "regions", None), "unassigned", None)
+    projection = _text(getattr(getattr(r.run, "regions", None), "projection", ""))
+    return {"files": files, "dropped": drops, "warnings": unique,
+            "skipped": [(_pretty(k), v) for k, v in r.skipped.items()],
+            "stages": [_pretty(s) for s in getattr(r.run, "stages_done", []) or []],
+            "unassigned": fmt_int(unassigned) if not _missing(unassigned) else "",
+            "projection": projection}
+
+
+def _is_demo(r: _Run) -> bool:
+    try:
+        from .._resources import resource_dir
+
+        demo = resource_dir("demo").resolve()
+        folder = getattr(r.config, "folder", None)
+        if folder is not None and _path_resolve(folder) == demo:
+            return True
+    except Exception:  # noqa: BLE001 - only a hint for the demo caution
+        pass
+    return str(getattr(r.config, "name", "")).strip().lower().startswith("demo")
+
+
+def _path_resolve(p: Any):
+    from pathlib import Path
+
+    return Path(p).resolve()
+
+
+# -- figures by section -------------------------------------------------------------------------------
+def _section_figures(r: _Run) -> dict[str, list[FigureRef]]:
+    traits = getattr(r.config, "traits", {}) or {}
+    out: dict[str, list[FigureRef]] = {"ranking": [], "maps": [], "analog": [], "trajectory": [],
+                                       "disagreements": [], "other": []}
+
+    def add(section, stem, alt, caption):
+        ref = r.figure(stem, alt=alt, caption=caption)
+        if ref is not None:
+            out[section].append(ref)
+
+    for stem in r.figures_with_prefix("top_taxa"):
+        add("ranking", stem, "Bar chart of the taxa with the highest combined scores, with interval bars.",
+            "Taxa with the highest combined scores; bars show the uncertainty interval.")
+    for stem in r.figures_with_prefix("risk_map"):
+        add("maps", stem, "Map of regions shaded by combined relative vulnerability.",
+            "Combined relative vulnerability by region. Hatched regions have too little data to judge.")
+    for stem in r.figures_with_prefix("side_by_side"):
+        add("maps", stem, "Two maps side by side: analog score and trajectory score by region, same colour scale.",
+            "Analog (left) and trajectory (right) evidence by region, on the same colour scale.")
+    for stem in r.figures_with_prefix("difference_map"):
+        add("maps", stem, "Map of the difference between the analog and trajectory scores by region.",
+            "Analog minus trajectory score by region; the colour scale is centred on zero (no difference).")
+    for stem in r.figures_with_prefix("forest_"):
+        trait = stem[len("forest_"):]
+        label = traits[trait].display if trait in traits else _pretty(trait)
+        add("analog", stem, f"Forest plot of odds ratios of loss by {label} class, per warming interval and pooled.",
+            f"Odds ratio of loss for each {label} class against the reference class, per warming interval and "
+            "pooled. Values above 1: lost more often than the reference class.")
+    for stem in r.figures_with_prefix("trajectory"):
+        add("trajectory", stem, "Small multiples of occupancy through time for selected lineages with fitted curves.",
+            "Occupancy histories of selected lineages with the fitted readings.")
+    for stem in r.figures_with_prefix("null"):
+        add("trajectory", stem, "Comparison of completed trajectories' shapes with the random-walk noise null.",
+            "Shapes of completed (extinct) trajectories against simulated noise-only excursions.")
+    for stem in r.figures_with_prefix("rank_scatter"):
+        add("disagreements", stem, "Scatter plot of analog rank against trajectory rank, largest disagreements labelled.",
+            "Analog rank against trajectory rank; points far from the diagonal disagree most.")
+    for stem in sorted(r.figures):
+        if stem not in r.used_figures:
+            add("other", stem, f"Figure {_pretty(stem)}.", _pretty(stem).capitalize() + ".")
+    return out
+
+
+# --------------------------------------------------------------------------------------------------
+# rendering
+# --------------------------------------------------------------------------------------------------
+def _asset(name: str) -> markupsafe.Markup:
+    text = resources.files(__package__).joinpath("templates", name).read_text(encoding="utf-8")
+    return markupsafe.Markup(text)  # our own CSS/JS, inlined as is
+
+
+@functools.lru_cache(maxsize=1)
+def _environment() -> jinja2.Environment:
+    """One environment per process, so templates are compiled once."""
+    env = jinja2.Environment(
+        loader=jinja2.PackageLoader("analog.briefing", "templates"),
+        autoescape=True,
+        undefined=jinja2.StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
+    env.filters.update(num=fmt_num, int=fmt_int, pct=fmt_pct, ratio=fmt_ratio)
+    return env
+
+
+def build_briefing(run: Any, *, figures: Mapping[str, Mapping[str, bytes]] | None = None,
+                   draw_insets: bool | None = None) -> dict[str, str]:
+    """Render the briefing and one page per region.
+
+    Parameters
+    ----------
+    run : analog.pipeline.RunResult
+        A finished run. Missing stages, tables or columns are tolerated: the page says plainly
+        which sections have no data and why.
+    figures : mapping, optional
+        Figure stem -> {format: bytes} as rendered by the output writer. Figures are found by stem
+        prefix (``forest_``, ``trajectory``, ``null``, ``risk_map``, ``side_by_side``,
+        ``difference_map``, ``rank_scatter``, ``top_taxa``); any other stem is shown under
+        "Other figures".
+    draw_insets : bool, optional
+        Draw a map inset per region with ``analog.figures.maps.region_inset`` when that function
+        exists. Default: only when ``figures`` is non-empty (so a run without figures stays
+        without images).
+
+    Returns
+    -------
+    dict of str to str
+        ``{"briefing.html": html, "regions/<region>.html": html, ...}``. Identical input gives
+        byte-identical pages (no clock is read).
+
+    Notes
+    -----
+    Pages are self-contained: figures are embedded as base64 PNG data, CSS and the small sorting
+    script are inline, nothing is fetched from the network. Region file names are the region ids
+    with characters outside ``A-Z a-z 0-9 . _ -`` replaced by ``_`` (see :func:`region_page_name`).
+    """
+    r = _Run(run, figures)
+    if draw_insets is None:
+        draw_insets = bool(r.figures)
+    rankings = _rankings(r)
+    regions = _regions(r, rankings, draw_insets=draw_insets)
+    figs = _section_figures(r)
+    config = r.config
+    ilabel = _interval_label(r)
+    common = {
+        "study": {"name": _text(getattr(config, "name", "")) or "Untitled study",
+                  "description": _text(getattr(config, "description", "")),
+                  "data_date": _text(getattr(config, "data_date", "")),
+                  "warming": fmt_num(getattr(config, "warming_c", math.nan), 1).rstrip("0").rstrip("."),
+                  "seed": _text(getattr(config, "seed", ""))},
+        "version": __version__,
+        "demo": _is_demo(r),
+        "css": _asset("briefing.css"),
+        "js": _asset("sort.js"),
+        "tiers": [TIERS[n] for n in TIER_NAMES],
+        "tier_rule": _tier_rule(r),
+        "interval_label": ilabel,
+        "missing": MISSING,
+    }
+    ranking_table = _ranking_table(r, rankings, table_id="ranking",
+                                   caption="All living taxa in the study, by combined relative vulnerability") \
+        if rankings is not None else None
+    context = {
+        **common,
+        "summary": _summary(r, rankings, regions),
+        "ranking": ranking_table,
+        "ranking_missing": None if rankings is not None else r.why_missing("combine"),
+        "regions": regions,
+        "region_overview": _region_overview(r, regions) if regions else None,
+        "regions_missing": None if regions else r.why_missing("regions"),
+        "figures": figs,
+        "analog_missing": None if r.analog_tables else r.why_missing("analog"),
+        "pooling": _pooling(r),
+        "loo": _loo(r),
+        "interval_weights": _interval_weights(r),
+        "trajectory_missing": None if r.trajectory_tables else r.why_missing("trajectory"),
+        "hindcast_table": _hindcast_table(r),
+        "noise_null": _noise_null(r),
+        "preferred": _preferred_counts(r),
+        "comparison": _comparison_table(r),
+        "disagreements": _disagreements(r),
+        "sensitivity": _sensitivity(r),
+        "combined_missing": None if r.combined_tables else r.why_missing("combine"),
+        "methods": _methods(r),
+        "references": [(k, REFERENCES[k][1]) for k in sorted(REFERENCES, key=lambda k: REFERENCES[k][1])],
+        "settings": _settings(r),
+        "provenance": _provenance(r),
+    }
+    env = _environment()
+    pages = {"briefing.html": env.get_template("briefing.html.j2").render(context)}
+    region_template = env.get_template("region.html.j2")
+    for g in regions:
+        pages[f"regions/{g.slug}.html"] = region_template.render({**common, "region": g,
+                                                                  "provenance": context["provenance"]})
+    return pages

@@ -1,0 +1,335 @@
+"""build_briefing on a synthetic run: structure, escaping, missing data, determinism, links."""
+from __future__ import annotations
+
+import base64
+import re
+import sys
+import types
+import warnings
+from html.parser import HTMLParser
+
+import matplotlib.pyplot as plt
+import pytest
+
+from analog.briefing import build_briefing, region_page_name
+from analog.briefing.references import REFERENCES
+from analog.errors import AnalogWarning
+from analog.figures.style import TIER_COLOURS
+from analog.pipeline import RunResult
+
+from conftest import ODD_REGION_ID, ODD_REGION_NAME, ODD_TAXON, make_study
+
+VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
+
+
+class PageScan(HTMLParser):
+    """Collects ids, links, images, scripts and checks that non-void tags are balanced."""
+
+    def __init__(self):
+        super().__init__(convert_charrefs=True)
+        self.stack, self.errors = [], []
+        self.ids, self.hrefs, self.imgs, self.scripts, self.links = [], [], [], [], []
+        self.tables: dict[str, list] = {}
+        self._table = None
+        self._row = None
+        self._cell = None
+        self.text = []
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        if "id" in a:
+            self.ids.append(a["id"])
+        if tag == "a" and "href" in a:
+            self.hrefs.append(a["href"])
+        if tag == "img":
+            self.imgs.append(a)
+        if tag == "script":
+            self.scripts.append(a)
+        if tag == "link":
+            self.links.append(a)
+        if tag == "table":
+            self._table = a.get("id")
+            self.tables.setdefault(self._table, [])
+        if tag == "tr" and self._table is not None:
+            self._row = []
+        if tag in ("td", "th") and self._row is not None:
+            self._cell = {"attrs": a, "text": ""}
+        if tag not in VOID:
+            self.stack.append(tag)
+
+    def handle_endtag(self, tag):
+        if tag in VOID:
+            return
+        if not self.stack or self.stack[-1] != tag:
+            self.errors.append(f"</{tag}> closes <{self.stack[-1] if self.stack else None}>")
+            if tag in self.stack:
+                while self.stack and self.stack.pop() != tag:
+                    pass
+            return
+        self.stack.pop()
+        if tag in ("td", "th") and self._cell is not None:
+            self._row.append(self._cell)
+            self._cell = None
+        if tag == "tr" and self._row is not None:
+            self.tables[self._table].append(self._row)
+            self._row = None
+        if tag == "table":
+            self._table = None
+
+    def handle_data(self, data):
+        self.text.append(data)
+        if self._cell is not None:
+            self._cell["text"] += data
+
+
+def scan(html: str) -> PageScan:
+    p = PageScan()
+    p.feed(html)
+    p.close()
+    assert not p.errors, p.errors[:5]
+    assert p.stack == [], f"unclosed tags: {p.stack}"
+    return p
+
+
+@pytest.fixture
+def pages(synthetic_run, synthetic_figures):
+    return build_briefing(synthetic_run, figures=synthetic_figures, draw_insets=False)
+
+
+def test_pages_and_region_file_names(pages):
+    assert set(pages) == {"briefing.html", "regions/R1.html", "regions/R3.html",
+                          f"regions/{region_page_name(ODD_REGION_ID)}.html"}
+    assert region_page_name(ODD_REGION_ID) == "R_2_x"
+    for name in pages:
+        assert re.fullmatch(r"briefing\.html|regions/[A-Za-z0-9._-]+\.html", name)
+
+
+def test_region_page_name_is_safe_and_unique():
+    taken: set[str] = set()
+    names = [region_page_name(x, taken) for x in ["a/b", "a b", "../x", "", "ok-1"]]
+    assert names == ["a_b", "a_b-2", "x", "region", "ok-1"]
+    assert all(".." not in n and "/" not in n for n in names)
+
+
+def test_odd_names_are_escaped(pages):
+    for html in pages.values():
+        assert "<script>alert(1)</script>" not in html
+        assert ODD_TAXON not in html
+        assert "<i>sp.</i>" not in html  # the dropped-record example stays text
+    main = pages["briefing.html"]
+    assert "&lt;b&gt;Taxon &amp; co&lt;/b&gt;" in main
+    assert "&lt;script&gt;alert(1)&lt;/script&gt; Bay &amp; Shoals" in main
+    assert "modern &amp; &lt;odd&gt;.csv" in main
+    # the only scripts are our own inline one
+    p = scan(main)
+    assert len(p.scripts) == 1 and "src" not in p.scripts[0]
+    assert any(ODD_REGION_NAME in t for t in p.text)  # readable as text once parsed
+
+
+def test_self_contained_and_links_resolve(pages):
+    for name, html in pages.items():
+        p = scan(html)
+        assert not p.links, "no external stylesheets"
+        assert not re.search(r"""(src|href)\s*=\s*["']?(https?:)?//""", html), name
+        assert p.imgs or name != "briefing.html"
+        for img in p.imgs:
+            assert img["src"].startswith(("data:image/png;base64,", "data:image/svg+xml;base64,"))
+            base64.b64decode(img["src"].split(",", 1)[1], validate=True)
+            assert img.get("alt")
+        ids = set(p.ids)
+        assert len(ids) == len(p.ids), f"duplicate ids in {name}"
+        main_ids = set(scan(pages["briefing.html"]).ids)
+        for href in p.hrefs:
+            target, _, anchor = href.partition("#")
+            if not target:
+                assert anchor in ids, f"{name}: broken anchor {href}"
+            elif name == "briefing.html":
+                assert target in pages, f"{name}: link to missing page {href}"
+            else:
+                assert target == "../briefing.html" and (not anchor or anchor in main_ids), href
+
+
+def test_every_figure_is_embedded_once(pages, synthetic_figures):
+    main = pages["briefing.html"]
+    for stem, formats in synthetic_figures.items():
+        data = formats.get("png") or formats["svg"]
+        assert main.count(base64.b64encode(data).decode()) == 1, stem
+    assert "Other figures" in main and "Unexpected extra." in main  # unknown stems are not lost
+
+
+def test_ranked_table_is_sortable_and_ordered(pages):
+    p = scan(pages["briefing.html"])
+    rows = p.tables["table-ranking"]
+    head, body = rows[0], rows[1:]
+    assert len(body) == 8
+    assert all(c["attrs"].get("data-type") in {"number", "text"} for c in head)
+    assert [c["attrs"].get("aria-sort") for c in head].count("ascending") == 1
+    ranks = [c[0]["attrs"]["data-sort"] for c in body]
+    assert ranks[:7] == ["1", "2", "3", "4", "5", "6", "7"] and ranks[7] == ""  # unranked taxon last
+    assert "<button type=\"button\" class=\"sort\">Combined score" in pages["briefing.html"]
+    assert body[0][1]["text"].strip() == "Alpha marina"
+
+
+def test_summary_states_agreement_and_hindcast_in_words(pages):
+    text = re.sub(r"\s+", " ", "".join(scan(pages["briefing.html"]).text))
+    # tau-b 0.42 with interval 0.12-0.70: "moderate" band of the stated rule of thumb, interval excludes 0
+    assert "The two lines of evidence moderately agree: Kendall's tau-b is 0.42 (interval 0.12 to 0.70)" in text
+    assert "Spearman's rho is 0.55" in text and "Its interval excludes zero." in text
+    assert ("the rise-and-fall reading predicted better than the random walk reading in the hindcast: "
+            "AUC 0.71 (interval 0.62 to 0.80) against 0.55 (interval 0.45 to 0.65)") in text
+    assert "does not clearly tell the two readings apart" in text  # 0.62-0.80 overlaps 0.45-0.65
+    assert "weights the analog line 60% and the trajectory line 40%" in text
+    assert "Depth zone: basin: more often lost than the reference class (pooled odds ratio 3.32" in text
+    assert "1 of 3 regions have too little data to judge" in text
+
+
+def test_agreement_interval_through_zero_is_called_chance(synthetic_run):
+    comp = synthetic_run.combined.comparison
+    comp.loc[comp["statistic"] == "kendall_tau_b", ["estimate", "low", "high"]] = [0.05, -0.2, 0.3]
+    html = build_briefing(synthetic_run, figures={})["briefing.html"]
+    assert "hardly agree at all" in html and "cannot be told apart from chance" in html
+
+
+def test_cautions_top_and_bottom_and_demo_note(pages, synthetic_run, tmp_path):
+    main = pages["briefing.html"]
+    top, toc, full = main.index("Read this first"), main.index('id="toc-head"'), main.index('id="cautions-head"')
+    assert top < toc < full
+    assert main.index("Signor–Lipps") > full
+    for word in ("not a forecast", "not a formal threat", "official assessment processes", "local regulations",
+                 "expert review", "Sampling.", "Age uncertainty.", "Taxonomic level."):
+        assert word in main
+    assert "Demonstration data" not in main
+    for name, html in pages.items():
+        assert "Read this first" in html and 'id="cautions-head"' in html, name
+    synthetic_run.study = make_study(tmp_path, name="Demo: invented coast")
+    demo = build_briefing(synthetic_run, figures={})
+    assert all("Demonstration data" in html for html in demo.values())
+
+
+def test_methods_cite_their_references(pages):
+    main = pages["briefing.html"]
+    for short in ("Firth 1993", "Heinze &amp; Schemper 2002", "DerSimonian &amp; Laird 1986", "Hartung &amp; Knapp 2001",
+                  "Sidik &amp; Jonkman 2002", "Higgins &amp; Thompson 2002", "Gower 1971", "Podani 1999",
+                  "Foote 2000", "Rubin 1987", "Foote et al. 2007", "Liow &amp; Stenseth 2007",
+                  "Hurvich &amp; Tsai 1989", "Burnham &amp; Anderson 2002", "Lande &amp; Orzack 1988",
+                  "Dennis, Munholland &amp; Scott 1991", "Faith 2008"):
+        assert f">{short}</a>" in main, short
+    for key in REFERENCES:
+        assert f'id="ref-{key}"' in main
+
+
+def test_tier_colours_and_contrast(pages):
+    main = pages["briefing.html"]
+    for colour in TIER_COLOURS.values():
+        assert f"background-color: {colour};" in main
+
+    # WCAG 2.1 contrast ratio (W3C, "contrast ratio" and "relative luminance" definitions); 4.5:1 for text
+    def lum(hexcolour):
+        c = [int(hexcolour[i:i + 2], 16) / 255 for i in (1, 3, 5)]
+        c = [x / 12.92 if x <= 0.03928 else ((x + 0.055) / 1.055) ** 2.4 for x in c]
+        return 0.2126 * c[0] + 0.7152 * c[1] + 0.0722 * c[2]
+
+    chips = re.findall(r'class="tier" style="background-color: (#[0-9a-f]{6}); color: (#[0-9a-f]{6});"', main)
+    assert chips
+    for bg, ink in set(chips):
+        hi, lo = sorted((lum(bg), lum(ink)), reverse=True)
+        assert (hi + 0.05) / (lo + 0.05) >= 4.5, (bg, ink)
+
+
+def test_insufficient_region_said_plainly(pages):
+    far = pages["regions/R3.html"]
+    assert "Too little data to judge this region" in far and "insufficient: 2 records" in far
+    assert "not as low risk" in far
+    assert "No living taxon of the study has records in this region." in far
+
+
+def test_region_page_lists_its_taxa_with_records(pages):
+    html = pages["regions/R1.html"]
+    p = scan(html)
+    rows = p.tables["table-taxa-R1"][1:]
+    names = [r[1]["text"].strip() for r in rows]
+    assert names == ["Alpha marina", "<b>Taxon & co</b>", "Theta ignota"]
+    assert [r[-1]["text"].strip() for r in rows] == ["40", "12", "5"]
+    assert 'href="../briefing.html"' in html
+
+
+def test_missing_stages_are_said_plainly(synthetic_run):
+    synthetic_run.trajectory = None
+    synthetic_run.skipped = {"trajectory": "trajectory stage not available in this build"}
+    html = build_briefing(synthetic_run, figures={})["briefing.html"]
+    assert "This part did not run: trajectory stage not available in this build." in html
+    scan(html)
+
+    bare = RunResult(study=synthetic_run.study, skipped={"analog": "not available", "combine": "needs evidence"})
+    out = build_briefing(bare, figures={})
+    assert list(out) == ["briefing.html"]
+    html = out["briefing.html"]
+    scan(html)
+    assert "This part did not run: needs evidence." in html
+    assert "This part did not run: not available." in html
+    assert "No data are available for this part." in html  # regions: never ran, no reason recorded
+    assert "<img" not in html
+
+
+def test_missing_columns_do_not_crash(synthetic_run):
+    r = synthetic_run.combined
+    r.rankings = r.rankings[["taxon_id", "scientificName", "combined_p"]]
+    r.comparison = r.comparison.iloc[0:0]
+    synthetic_run.regions.summary_table = synthetic_run.regions.summary_table[["region_id", "name"]]
+    html = build_briefing(synthetic_run, figures={})["briefing.html"]
+    scan(html)
+    assert "The agreement between the two lines could not be measured" in html
+
+
+def test_deterministic(synthetic_run, synthetic_figures):
+    a = build_briefing(synthetic_run, figures=synthetic_figures, draw_insets=False)
+    b = build_briefing(synthetic_run, figures=dict(reversed(list(synthetic_figures.items()))), draw_insets=False)
+    assert a == b
+    assert not re.search(r"20\d\d-\d\d-\d\dT\d\d:", a["briefing.html"])  # no clock time
+    assert "2026-11-01" in a["briefing.html"]  # the study's data date is shown
+
+
+@pytest.fixture
+def fake_maps(monkeypatch):
+    calls = []
+
+    def region_inset(region_id, region_result, *, context=None, params=None):
+        assert region_result is not None and params is None  # the synthetic study has no [figures]
+        calls.append(region_id)
+        if region_id == "R3":
+            raise ValueError("no geometry")
+        fig, ax = plt.subplots(figsize=(2, 2))
+        ax.plot([0, 1], [0, 1])
+        return fig
+
+    module = types.ModuleType("analog.figures.maps")
+    module.region_inset = region_inset
+    monkeypatch.setitem(sys.modules, "analog.figures.maps", module)
+    return calls
+
+
+def test_region_insets_drawn_in_memory(synthetic_run, synthetic_figures, fake_maps):
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        out = build_briefing(synthetic_run, figures=synthetic_figures)
+    assert sorted(fake_maps) == sorted(["R1", ODD_REGION_ID, "R3"])
+    assert "<img" in out["regions/R1.html"] and "Northern Shelf (outlined)" in out["regions/R1.html"]
+    assert "No map inset is available for this region." in out["regions/R3.html"]
+    assert any(issubclass(w.category, AnalogWarning) and "R3" in str(w.message) for w in caught)
+    fake_maps.clear()
+    build_briefing(synthetic_run, figures={})  # no figures drawn -> no insets either
+    assert fake_maps == []
+
+
+def test_real_region_inset_when_available(synthetic_run):
+    maps = pytest.importorskip("analog.figures.maps")
+    if not hasattr(maps, "region_inset"):
+        pytest.skip("analog.figures.maps.region_inset is not part of this build")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", AnalogWarning)  # an inset that fails to draw fails the test
+        out = build_briefing(synthetic_run, figures={}, draw_insets=True)
+    for name in ("regions/R1.html", "regions/R3.html"):
+        img = scan(out[name]).imgs
+        assert len(img) == 1 and img[0]["src"].startswith("data:image/png;base64,")
+        png = base64.b64decode(img[0]["src"].split(",", 1)[1])
+        assert png[:8] == b"\x89PNG\r\n\x1a\n"
