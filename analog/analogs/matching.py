@@ -43,7 +43,7 @@ _COLUMNS = ["taxon_id", "relative_id", "relative_rank", "similarity", "shared_ra
 
 def _no_rank(value) -> bool:
     return value is None or (isinstance(value, float) and np.isnan(value)) or str(value).strip().lower() in (
-        "", "none", "nan", "<na>")
+        "", "none", "nan", "<na>", "root")
 
 
 def match_relatives(modern: pd.DataFrame, fossil: pd.DataFrame, traits: dict[str, TraitSpec], *,
@@ -103,7 +103,7 @@ def match_relatives(modern: pd.DataFrame, fossil: pd.DataFrame, traits: dict[str
     names = list(traits)
     if names:
         kinds = {n: traits[n].kind for n in names}
-        levels = {n: tuple(traits[n].levels) for n in names if traits[n].levels}
+        levels = {n: list(traits[n].levels) for n in names if traits[n].kind == "ordinal" and traits[n].levels}
         trait_d = np.asarray(stats.gower_distance(modern[names].reset_index(drop=True),
                                                   fossil[names].reset_index(drop=True), kinds, levels=levels),
                              dtype=float)
@@ -135,7 +135,7 @@ def match_relatives(modern: pd.DataFrame, fossil: pd.DataFrame, traits: dict[str
         "relative_id": pd.array(fos_ids[ff], dtype="str"),
         "relative_rank": (rr + 1).astype(int),
         "similarity": top[ee, rr],
-        "shared_rank": pd.array([None if _no_rank(s) else str(s) for s in shared[ee, ff]], dtype="str"),
+        "shared_rank": pd.array(["none" if _no_rank(s) else str(s) for s in shared[ee, ff]], dtype="str"),
         "trait_distance": trait_d[ee, ff],
         "reason": pd.array(reasons, dtype="str"),
     })
