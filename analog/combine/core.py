@@ -269,21 +269,25 @@ def ordering_score(frame: pd.DataFrame, wa: float, wt: float, *, method: str = "
         return pool_pair(a, t, wa, wt)
     if method != "rank":
         raise AnalogError(f"`method` was {method!r} but is expected to be in {{'logit', 'rank'}}")
-    # percentile ranks within each line (ties averaged); a single-line taxon keeps its own line's
-    scores = np.column_stack([_percentile(a), _percentile(t)])
-    out = np.where(np.isnan(scores[:, 0]), scores[:, 1], scores[:, 0])
+    # weighted mean of within-line percentile ranks (analog.stats.rank_average); a taxon with a
+    # single line keeps its percentile in that line whatever the weights (even a zero weight)
+    scores = np.column_stack([a, t])
+    out = np.full(len(a), np.nan)
     both = ~np.isnan(scores).any(axis=1)
     if both.any():
-        out[both] = stats.rank_average(scores[both], np.array([wa, wt]))
+        out[both] = stats.rank_average(scores, np.array([wa, wt]))[both]
+    single = np.isnan(scores).sum(axis=1) == 1
+    if single.any():
+        own = np.where(np.isnan(a), _percentile(t), _percentile(a))
+        out[single] = own[single]
     return out
 
 
 def _percentile(x: np.ndarray) -> np.ndarray:
-    ok = ~np.isnan(x)
-    out = np.full(len(x), np.nan)
-    if ok.any():
-        out[ok] = rankdata(x[ok], method="average") / ok.sum()
-    return out
+    """Percentile ranks within one line (analog.stats.rank_average with a single source)."""
+    if np.isnan(x).all():
+        return np.full(len(x), np.nan)
+    return stats.rank_average(x)
 
 
 def _rank_desc(score) -> np.ndarray:
