@@ -75,6 +75,7 @@ class TrajectoryResult:
     threshold_logit: float = float("nan")
     method: str = ""
     null_summary: dict = field(default_factory=dict)
+    null_samples: pd.DataFrame = field(default_factory=pd.DataFrame)
     notes: list[str] = field(default_factory=list)
 
     def tables(self) -> dict[str, pd.DataFrame]:
@@ -229,7 +230,7 @@ def run_trajectory(study, params: TrajectoryParams | None = None, *, rng: np.ran
     extinct_ids = taxa.loc[~taxa["extant"].astype(bool), "taxon_id"]
     done_series = table.loc[table["taxon_id"].isin(set(extinct_ids))]
     ends_in = _ends_in_interval(study.fossil_occurrences, study.intervals, extinct_ids)
-    null_table, null_summary = noise_null(done_series, ends_in, n_null=p.n_null, level=p.interval_level,
+    null_table, null_summary, null_samples = noise_null(done_series, ends_in, n_null=p.n_null, level=p.interval_level,
                                           rng=r_null)
 
     step("hindcast", 4)
@@ -245,7 +246,7 @@ def run_trajectory(study, params: TrajectoryParams | None = None, *, rng: np.ran
         occupancy=table[cols].reset_index(drop=True), fits=fits, risk=risk, risk_draws=risk_draws,
         hindcast=hind, noise_null=null_table, skill=skill, params=p, bins=occ.bins, dropped=occ.dropped,
         hindcast_cases=cases, fitset=fitset, step_myr=step_myr, threshold_logit=thr, method=occ.method,
-        null_summary=null_summary)
+        null_summary=null_summary, null_samples=null_samples)
 
 
 def _fits_table(fitset: FitSet, labels: np.ndarray, min_bins: int) -> pd.DataFrame:

@@ -38,7 +38,7 @@ def _padded(series: pd.DataFrame) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 
 def noise_null(series: pd.DataFrame, ends_in: pd.Series, *, n_null: int = 2000, level: float = 0.95,
-               rng: np.random.Generator, min_bins: int = 3) -> tuple[pd.DataFrame, dict]:
+               rng: np.random.Generator, min_bins: int = 3) -> tuple[pd.DataFrame, dict, pd.DataFrame]:
     """Compare completed occupancy histories with Brownian excursions of the same length.
 
     Parameters
@@ -67,7 +67,10 @@ def noise_null(series: pd.DataFrame, ends_in: pd.Series, *, n_null: int = 2000, 
         the length-matched null values by a two-sample Kolmogorov–Smirnov test
         (``test_statistic``, ``test_p_value``).
     summary : dict
-        ``{group: {statistic: (observed mean, null mean, p)}}`` for the text summary.
+        ``{group: {statistic: (observed mean, null mean, p, KS p)}}`` for the text summary.
+    samples : DataFrame
+        ``group, statistic, value``: length-matched null values pooled over each group's
+        taxa (at most 20 000 per group and statistic), for figures.
 
     Notes
     -----
@@ -90,7 +93,7 @@ def noise_null(series: pd.DataFrame, ends_in: pd.Series, *, n_null: int = 2000, 
     keep = n >= min_bins
     keys, h, n = keys[keep], h[keep], n[keep]
     if len(keys) == 0:
-        return pd.DataFrame(columns=NULL_COLUMNS), {}
+        return pd.DataFrame(columns=NULL_COLUMNS), {}, pd.DataFrame(columns=["group", "statistic", "value"])
     observed = hat_shape(h)  # positions as time: bins are equal steps of the series
     observed.index = keys
     alpha = (1.0 - level) / 2.0
@@ -134,7 +137,7 @@ def noise_null(series: pd.DataFrame, ends_in: pd.Series, *, n_null: int = 2000, 
     taxon_rows["_s"] = np.repeat(np.arange(len(STATISTICS)), len(keys))
     taxon_rows = taxon_rows.sort_values(["_o", "_s"], kind="stable").reset_index(drop=True)
 
-    data_rows, summary = [], {}
+    data_rows, summary, samples = [], {}, []
     n_rep = max(n_null, 1000)
     for group in _GROUPS:
         sel = np.flatnonzero(groups == group)
@@ -160,6 +163,8 @@ def noise_null(series: pd.DataFrame, ends_in: pd.Series, *, n_null: int = 2000, 
             p_mean = min(1.0, 2.0 * min((below + 1.0) / (n_rep + 1.0), (above + 1.0) / (n_rep + 1.0)))
             pooled = np.concatenate([null_by_len[int(L)][:, j] for L in lens])
             pooled = pooled[~np.isnan(pooled)]
+            shown = pooled if len(pooled) <= 20000 else pooled[rng.choice(len(pooled), 20000, replace=False)]
+            samples.append(pd.DataFrame({"group": group, "statistic": stat, "value": shown}))
             ks = sps.ks_2samp(obs[ok], pooled)  # two-sample Kolmogorov–Smirnov (scipy.stats.ks_2samp)
             data_rows.append({
                 "level": "dataset", "group": group, "taxon_id": "", "statistic": stat, "observed": obs_mean,
@@ -172,4 +177,6 @@ def noise_null(series: pd.DataFrame, ends_in: pd.Series, *, n_null: int = 2000, 
             summary[group][stat] = (obs_mean, float(null_means.mean()), p_mean, float(ks.pvalue))
     table = pd.concat([pd.DataFrame(data_rows, columns=NULL_COLUMNS), taxon_rows[NULL_COLUMNS]],
                       ignore_index=True)
-    return table, summary
+    samples = (pd.concat(samples, ignore_index=True) if samples
+               else pd.DataFrame(columns=["group", "statistic", "value"]))
+    return table, summary, samples

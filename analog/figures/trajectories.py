@@ -1,0 +1,237 @@
+"""Figures of the trajectory evidence: occupancy histories with fitted curves, and the noise null."""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.patches import Patch
+
+from .style import CATEGORICAL, NO_DATA_COLOUR, TRAJECTORY_COLOUR, add_caption, figure_style
+
+__all__ = ["trajectory_panels", "null_comparison"]
+
+_NCOLS = 4
+_CURVE_COLOUR = CATEGORICAL[0]
+_FLAG_COLOUR = CATEGORICAL[5]
+_STAT_TITLES = {"peak_position": ("Where the peak falls", "Peak position (0 = first bin, 1 = last bin)"),
+                "symmetry": ("Symmetry of the history", "Centre of mass offset (−1 early … +1 late)"),
+                "peakedness": ("How sharp the peak is", "Peak height / mean height")}
+
+
+def _expit(x):
+    return 1.0 / (1.0 + np.exp(-np.asarray(x, dtype=float)))
+
+
+def _with_footer(size):
+    """A figure whose drawing area leaves a strip at the foot for the caption."""
+    fig = Figure(figsize=size, layout="constrained")
+    body, _ = fig.subfigures(2, 1, height_ratios=[size[1] - 0.3, 0.3])
+    return fig, body
+
+
+def _pick_taxa(result, study, taxa, max_panels):
+    """Figure key -> ordered taxon ids."""
+    occ_ids = set(result.occupancy["taxon_id"])
+    if taxa is not None:
+        chosen = [str(t) for t in taxa if str(t) in occ_ids][:max_panels]
+        return {"trajectories_selected": chosen} if chosen else {}
+    out = {}
+    risk = result.risk.loc[result.risk["trajectory_p"].notna()].sort_values(
+        ["trajectory_p", "taxon_id"], ascending=[False, True], kind="stable")
+    if len(risk):
+        out["trajectories_extant"] = risk["taxon_id"].head(max_panels).tolist()
+    extant = set(study.taxa.loc[study.taxa["extant"].astype(bool), "taxon_id"].astype(str))
+    fitted = result.fits.loc[result.fits["preferred"] & ~result.fits["taxon_id"].isin(extant)]
+    if len(fitted):
+        longest = fitted.sort_values(["n_fitted", "taxon_id"], ascending=[False, True], kind="stable")
+        out["trajectories_extinct"] = longest["taxon_id"].head(max_panels).tolist()
+    return out
+
+
+def _model_curve(result, taxon, model, ages_dense):
+    """Fitted occupancy curve of ``model`` for one taxon at ``ages_dense`` (Ma), or None."""
+    from ..trajectory.models import curve_value
+
+    fs = result.fitset
+    if fs is None or model not in fs.fits:
+        return None
+    idx = np.flatnonzero(fs.batch.key == taxon)
+    if not len(idx):
+        return None
+    i = idx[0]
+    fit = fs.fits[model].take([i])
+    t = fs.batch.age0[i] - ages_dense
+    y1 = fs.batch.y[i, 0]
+    t1 = fs.batch.t[i, 0]
+    if model == "stasis":
+        val = np.full(len(t), fit.params["mean_logit"][0])
+    elif model in ("rise_fall", "rise_fall_asymmetric"):
+        val = curve_value(fit.params, t[None, :])[0]
+    else:  # expected path of the walk given the first value
+        mu = fit.params.get("drift_per_myr", np.zeros(1))[0]
+        val = y1 + mu * (t - t1)
+    return _expit(val)
+
+
+def trajectory_panels(result, study, *, taxa=None, max_panels: int = 24) -> dict[str, Figure]:
+    """Small multiples of occupancy histories with the preferred model's curve.
+
+    Parameters
+    ----------
+    result : TrajectoryResult
+        From :func:`analog.trajectory.run_trajectory`.
+    study : Study
+        For taxon names and which taxa are extant.
+    taxa : sequence of str, optional
+        Taxon ids to draw (one figure, ``trajectories_selected``). By default two
+        figures: the extant taxa with the highest trajectory scores
+        (``trajectories_extant``) and the longest completed histories
+        (``trajectories_extinct``).
+    max_panels : int, default=24
+
+    Returns
+    -------
+    dict of str -> matplotlib.figure.Figure
+
+    Notes
+    -----
+    Points are occupancy per bin; open points are bins with fewer sampled units than
+    ``min_sampled`` (kept in the fits, shown so they are not over-read). The line is
+    the preferred model on the occupancy scale (inverse logit of the fitted values;
+    for the random walks, the expected path from the first bin). The dotted line is
+    the quasi-extinction threshold; the shaded strip right of 0 Ma is the projection
+    horizon of extant taxa.
+    """
+    names = dict(zip(study.taxa["taxon_id"].astype(str), study.taxa["scientificName"].astype(str)))
+    occ = result.occupancy
+    fits = result.fits
+    pref = fits.loc[fits["preferred"]].set_index("taxon_id") if len(fits) else pd.DataFrame()
+    risk = result.risk.set_index("taxon_id") if len(result.risk) else pd.DataFrame()
+    p = result.params
+    thr = p.threshold_occupancy
+    horizon = p.horizon_bins * result.step_myr
+    out = {}
+    for key, ids in _pick_taxa(result, study, taxa, max_panels).items():
+        n = len(ids)
+        ncols = min(_NCOLS, n)
+        nrows = int(np.ceil(n / ncols))
+        with figure_style():
+            fig, body = _with_footer((2.7 * ncols + 0.6, 2.15 * nrows + 1.0))
+            axes = np.atleast_1d(body.subplots(nrows, ncols, squeeze=False)).ravel()
+            for ax, taxon in zip(axes, ids):
+                rows = occ.loc[occ["taxon_id"] == taxon]
+                age = rows["bin_mid_ma"].to_numpy()
+                val = rows["occupancy"].to_numpy()
+                low = rows["low_sample"].to_numpy(bool)
+                ax.plot(age, val, color=TRAJECTORY_COLOUR, lw=0.8, alpha=0.7)
+                ax.plot(age[~low], val[~low], "o", ms=3.2, color=TRAJECTORY_COLOUR)
+                ax.plot(age[low], val[low], "o", ms=3.2, mfc="white", mec=TRAJECTORY_COLOUR)
+                is_extant = taxon in risk.index
+                lo_age = -horizon if is_extant else np.nanmin(age) - 0.5 * result.step_myr
+                hi_age = np.nanmax(age) + 0.5 * result.step_myr
+                reading, model = "", ""
+                if taxon in pref.index:
+                    model = pref.at[taxon, "model"]
+                    reading = pref.at[taxon, "reading"]
+                    dense = np.linspace(hi_age, lo_age if is_extant else np.nanmin(age), 120)
+                    curve = _model_curve(result, taxon, model, dense)
+                    if curve is not None:
+                        ax.plot(dense, curve, color=_CURVE_COLOUR, lw=1.3)
+                if is_extant:
+                    ax.axvspan(0, -horizon, color=NO_DATA_COLOUR, alpha=0.6, lw=0)
+                ax.axhline(thr, color="#555555", lw=0.7, ls=":")
+                ax.set_xlim(hi_age, lo_age)
+                top = np.nanmax(val) if np.isfinite(val).any() else thr
+                ax.set_ylim(0, max(top * 1.15, thr * 2, 0.02))
+                title = names.get(taxon, taxon)
+                sub = reading or "too short to model"
+                if is_extant and pd.notna(risk.at[taxon, "trajectory_p"]):
+                    sub += f"; score {risk.at[taxon, 'trajectory_p']:.2f}"
+                ax.set_title(f"{title}\n{sub}", fontsize=8, fontweight="normal", loc="left")
+                ax.tick_params(labelsize=7)
+            for i, ax in enumerate(axes[:n]):
+                if i >= n - ncols:           # lowest panel of each column
+                    ax.set_xlabel("Age (Ma)", fontsize=8)
+                if i % ncols == 0:
+                    ax.set_ylabel("Occupancy\n(share of sampled units)", fontsize=8)
+            for ax in axes[n:]:
+                ax.set_visible(False)
+            heading = {"trajectories_extant": "Occupancy histories of the extant taxa with the highest trajectory scores",
+                       "trajectories_extinct": "Occupancy histories of the longest-lived extinct taxa",
+                       "trajectories_selected": "Occupancy histories"}[key]
+            body.suptitle(heading, fontsize=10, fontweight="bold")
+            handles = [Line2D([], [], color=TRAJECTORY_COLOUR, marker="o", ms=4, lw=0.8, label="occupancy"),
+                       Line2D([], [], color=TRAJECTORY_COLOUR, marker="o", ms=4, mfc="white", lw=0,
+                              label=f"bin with < {p.min_sampled} sampled units"),
+                       Line2D([], [], color=_CURVE_COLOUR, lw=1.3, label="preferred model"),
+                       Line2D([], [], color="#555555", lw=0.7, ls=":", label=f"threshold ({thr:g})")]
+            if key != "trajectories_extinct":
+                handles.append(Patch(color=NO_DATA_COLOUR, label=f"projection horizon ({horizon:g} Myr)"))
+            body.legend(handles=handles, loc="outside lower center", ncols=len(handles), fontsize=7)
+            add_caption(fig, "Scores rank lineages by their own occupancy history; the horizon is geological time.",
+                        data_date=study.config.data_date)
+        out[key] = fig
+    return out
+
+
+def null_comparison(result) -> dict[str, Figure]:
+    """Observed hat-shape statistics against the Brownian-excursion null.
+
+    Parameters
+    ----------
+    result : TrajectoryResult
+
+    Returns
+    -------
+    dict of str -> matplotlib.figure.Figure
+        ``{'noise_null': Figure}`` (empty if no completed history was long enough).
+
+    Notes
+    -----
+    Grey: length-matched excursions (what pinned noise alone draws). Orange: completed
+    histories; red outline: histories ending in a catalogue interval (not expected to
+    be symmetric). Vertical lines mark the means; each panel states the dataset-level
+    p-value of the mean and of the KS test.
+    """
+    table = result.noise_null
+    samples = result.null_samples
+    if table is None or not len(table) or samples is None or not len(samples):
+        return {}
+    per = table.loc[table["level"] == "taxon"]
+    data = table.loc[table["level"] == "dataset"]
+    with figure_style():
+        fig, body = _with_footer((10.5, 3.8))
+        axes = body.subplots(1, 3)
+        for ax, stat in zip(axes, _STAT_TITLES):
+            null = samples.loc[(samples["statistic"] == stat) & (samples["group"] == "completed"), "value"]
+            if not len(null):
+                null = samples.loc[samples["statistic"] == stat, "value"]
+            obs = per.loc[(per["statistic"] == stat) & (per["group"] == "completed"), "observed"].dropna()
+            flag = per.loc[(per["statistic"] == stat) & (per["group"] == "ends_in_interval"), "observed"].dropna()
+            values = np.concatenate([null.to_numpy(float), obs.to_numpy(float), flag.to_numpy(float)])
+            lo, hi = np.nanquantile(values, [0.001, 0.999]) if len(values) else (0, 1)
+            edges = np.linspace(lo, hi, 31)
+            ax.hist(null, bins=edges, density=True, color=NO_DATA_COLOUR, label="excursions (noise null)")
+            if len(obs):
+                ax.hist(obs, bins=edges, density=True, histtype="step", lw=1.6, color=TRAJECTORY_COLOUR,
+                        label=f"completed histories (n = {len(obs)})")
+                ax.axvline(obs.mean(), color=TRAJECTORY_COLOUR, lw=1.2)
+            if len(flag):
+                ax.hist(flag, bins=edges, density=True, histtype="step", lw=1.2, ls="--", color=_FLAG_COLOUR,
+                        label=f"ending in a catalogue interval (n = {len(flag)})")
+            ax.axvline(float(np.mean(null)), color="#777777", lw=1.0, ls="--")
+            title, xlabel = _STAT_TITLES[stat]
+            row = data.loc[(data["statistic"] == stat) & (data["group"] == "completed")]
+            if len(row):
+                r = row.iloc[0]
+                title += f"\nmean {r['observed']:.2f} vs {r['null_mean']:.2f}; p = {r['p_value']:.2g}, KS p = {r['test_p_value']:.2g}"
+            ax.set_title(title, fontsize=8.5, fontweight="normal", loc="left")
+            ax.set_xlabel(xlabel)
+            ax.set_ylabel("Density")
+        handles, labels = axes[0].get_legend_handles_labels()
+        body.legend(handles, labels, loc="outside lower center", ncols=3, fontsize=7.5)
+        body.suptitle("Are completed occupancy histories more hat-shaped than pinned noise?", fontsize=10,
+                     fontweight="bold")
+        add_caption(fig, "Null: Brownian excursions (norm of a 3-D Brownian bridge) with the same number of bins.")
+    return {"noise_null": fig}
