@@ -18,7 +18,6 @@ from __future__ import annotations
 import argparse
 import json
 import math
-import os
 import sys
 from pathlib import Path
 
@@ -922,5 +921,4 @@ def main(argv=None):
 
 
 if __name__ == "__main__":
-    os.environ.setdefault("PYTHONHASHSEED", "0")
     sys.exit(main())

@@ -89,15 +89,22 @@ def test_planted_truth_is_consistent_with_the_tables(small_pair):
     young = pd.to_numeric(occ.loc[numeric, "youngest_ma"])
     width = old - young
     assert (width >= 0.49).all() and (width <= 12.01).all() and (young >= 0).all()
-    # Every planted victim's last occurrence can fall in its window; nothing occurs after its death.
+    # Each planted victim has an occurrence dated wholly inside its window; each survivor has
+    # one whose range reaches below the window (its true age is after the window).
     iv = load_intervals().set_index("interval_id")
-    last_young = occ[numeric].assign(y=young).groupby("taxon_id")["y"].min()
+    ages = pd.DataFrame({"taxon_id": occ["taxon_id"],
+                         "old": pd.to_numeric(occ["oldest_ma"]).fillna(staged["oldest_ma"]),
+                         "young": pd.to_numeric(occ["youngest_ma"]).fillna(
+                             resolve_stages(occ["latestAgeOrHighestStage"])["youngest_ma"])})
+    assert ages[["old", "young"]].notna().all().all()
     for wid, rec in truth["selectivity"]["intervals"].items():
         assert set(rec["lost_taxa"]) <= set(rec["at_risk_taxa"]) <= ids
         assert rec["n_lost"] == len(rec["lost_taxa"])
-        victims = [t for t in rec["lost_taxa"] if t in last_young.index]
-        # Ranges are at most 12 Myr wide, so a victim's youngest bound sits near its window.
-        assert (last_young[victims] >= iv.loc[wid, "youngest_ma"] - 12.0).all()
+        wo, wy = iv.loc[wid, "oldest_ma"], iv.loc[wid, "youngest_ma"]
+        inside = ages[(ages["old"] <= wo) & (ages["young"] >= wy)]
+        assert set(rec["lost_taxa"]) <= set(inside["taxon_id"]), wid
+        reaches_after = set(ages.loc[ages["young"] < wy, "taxon_id"])
+        assert set(rec["at_risk_taxa"]) - set(rec["lost_taxa"]) <= reaches_after, wid
     extant = set(taxa.loc[taxa["extant"] == "true", "taxon_id"])
     traj = truth["trajectories"]
     groups = [set(traj["extant_decline"]), set(traj["extant_wander"]), set(traj["extant_stable"]),
