@@ -148,15 +148,12 @@ def resolve_stages(names: pd.Series) -> pd.DataFrame:
     """
     names = pd.Series(names)
     lookup = _lookup()
-    uniques = pd.unique(names.to_numpy(dtype=object))
-    old_map, young_map = {}, {}
-    for u in uniques:
-        hit = lookup.get(normalize_stage_name(u))
-        old_map[u] = np.nan if hit is None else hit[1]
-        young_map[u] = np.nan if hit is None else hit[2]
-    values = names.to_numpy(dtype=object)
-    oldest = np.array([old_map[v] for v in values], dtype="float64") if len(values) else np.empty(0)
-    youngest = np.array([young_map[v] for v in values], dtype="float64") if len(values) else np.empty(0)
+    codes, uniques = pd.factorize(names, use_na_sentinel=True)  # missing -> -1
+    hits = [lookup.get(normalize_stage_name(u)) for u in uniques]
+    table = np.array([(np.nan, np.nan) if h is None else (h[1], h[2]) for h in hits] + [(np.nan, np.nan)],
+                     dtype="float64").reshape(-1, 2)
+    ages = table[np.where(codes < 0, len(hits), codes)]
+    oldest, youngest = ages[:, 0], ages[:, 1]
     return pd.DataFrame({"oldest_ma": oldest, "youngest_ma": youngest}, index=names.index)
 
 
