@@ -230,7 +230,7 @@ def run_trajectory(study, params: TrajectoryParams | None = None, *, rng: np.ran
     extinct_ids = taxa.loc[~taxa["extant"].astype(bool), "taxon_id"]
     done_series = table.loc[table["taxon_id"].isin(set(extinct_ids))]
     ends_in = _ends_in_interval(study.fossil_occurrences, study.intervals, extinct_ids)
-    null_table, null_summary, null_samples = noise_null(done_series, ends_in, n_null=p.n_null, level=p.interval_level,
+    null_table, null_summary, null_samples = noise_null(done_series, ends_in, scale=p.null_scale, n_null=p.n_null, level=p.interval_level,
                                           rng=r_null)
 
     step("hindcast", 4)

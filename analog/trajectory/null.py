@@ -4,9 +4,14 @@ A random walk conditioned to start and end at zero draws hats on its own. Its
 continuous limit is the standard Brownian excursion (the norm of a 3-dimensional
 Brownian bridge), simulated exactly at the grid points by
 :func:`analog.stats.brownian_excursions`. Each completed (extinct) series of ``n``
-bins is read as the interior of a hat that is zero one bin before its first and one
-bin after its last occurrence, and compared with excursions on the same ``n + 2``
-points using :func:`analog.stats.hat_shape` (peak position, symmetry, peakedness).
+bins is compared with the ``n`` interior points of excursions on ``n + 2`` grid
+points, using :func:`analog.stats.hat_shape` (peak position, symmetry, peakedness).
+
+Scale matters for peakedness (not for peak position): the models work on logit
+occupancy, so by default the logit series is compared, heights measured from each
+series' own minimum, the null's interior points measured the same way. On the
+occupancy scale the series is framed by zero occupancy one bin before its first and
+one bin after its last occurrence and compared with whole excursions.
 """
 from __future__ import annotations
 
@@ -24,30 +29,37 @@ _GROUPS = {"completed": "completed histories not ending in a catalogue interval"
            "ends_in_interval": "histories whose last occurrence falls in a catalogue interval"}
 
 
-def _padded(series: pd.DataFrame) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Rows of occupancy with a zero before the first and after the last bin."""
+def _rows(series: pd.DataFrame, scale: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Series as padded rows: occupancy framed by zeros, or logit occupancy as it is."""
     codes, keys = pd.factorize(series["taxon_id"].astype(str), sort=False)
     pos = series.groupby(codes, sort=False).cumcount().to_numpy()
     n = np.bincount(codes, minlength=len(keys))
-    width = int(n.max()) + 2 if len(n) else 2
-    h = np.full((len(keys), width), np.nan)
-    h[codes, pos + 1] = series["occupancy"].to_numpy(float)
-    h[np.arange(len(keys)), 0] = 0.0
-    h[np.arange(len(keys)), n + 1] = 0.0
+    pad = 1 if scale == "occupancy" else 0
+    h = np.full((len(keys), (int(n.max()) if len(n) else 0) + 2 * pad), np.nan)
+    column = "occupancy" if scale == "occupancy" else "empirical_logit"
+    h[codes, pos + pad] = series[column].to_numpy(float)
+    if pad:
+        h[np.arange(len(keys)), 0] = 0.0
+        h[np.arange(len(keys)), n + 1] = 0.0
     return np.asarray(keys, dtype=object), h, n
 
 
-def noise_null(series: pd.DataFrame, ends_in: pd.Series, *, n_null: int = 2000, level: float = 0.95,
-               rng: np.random.Generator, min_bins: int = 3) -> tuple[pd.DataFrame, dict, pd.DataFrame]:
+def noise_null(series: pd.DataFrame, ends_in: pd.Series, *, scale: str = "logit", n_null: int = 2000,
+               level: float = 0.95, rng: np.random.Generator, min_bins: int = 3) -> tuple[pd.DataFrame, dict, pd.DataFrame]:
     """Compare completed occupancy histories with Brownian excursions of the same length.
 
     Parameters
     ----------
     series : DataFrame
         Completed (extinct) series, one row per taxon and bin ordered old → young:
-        ``taxon_id, occupancy`` (NaN = bin without sampled units).
+        ``taxon_id, occupancy, empirical_logit`` (NaN = bin without sampled units).
     ends_in : Series
         Index ``taxon_id`` → interval id(s) the last occurrence falls in ('' for none).
+    scale : {'logit', 'occupancy'}, default='logit'
+        'logit': the series' logit occupancy, heights measured from its own minimum,
+        against the interior points of excursions measured the same way. 'occupancy':
+        occupancy with a zero one bin before the first and one after the last
+        occurrence, against whole excursions on as many points.
     n_null : int, default=2000
         Excursions simulated per series length.
     level : float, default=0.95
@@ -89,19 +101,24 @@ def noise_null(series: pd.DataFrame, ends_in: pd.Series, *, n_null: int = 2000, 
     """
     from ..stats import brownian_excursions, hat_shape
 
-    keys, h, n = _padded(series)
+    if scale not in ("logit", "occupancy"):
+        raise ValueError(f"`scale` was {scale!r} but is expected to be in {{'logit', 'occupancy'}}")
+    baseline = "zero" if scale == "occupancy" else "min"
+    keys, h, n = _rows(series, scale)
     keep = n >= min_bins
     keys, h, n = keys[keep], h[keep], n[keep]
     if len(keys) == 0:
         return pd.DataFrame(columns=NULL_COLUMNS), {}, pd.DataFrame(columns=["group", "statistic", "value"])
-    observed = hat_shape(h)  # positions as time: bins are equal steps of the series
+    observed = hat_shape(h, baseline=baseline)  # positions as time: bins are equal steps of the series
     observed.index = keys
     alpha = (1.0 - level) / 2.0
 
     null_by_len = {}
     for length in np.unique(n):
         paths = brownian_excursions(n_null, int(length) + 1, rng=rng)
-        null_by_len[int(length)] = hat_shape(paths)[list(STATISTICS)].to_numpy()
+        if scale == "logit":
+            paths = paths[:, 1:-1]  # the n interior points, like an observed series
+        null_by_len[int(length)] = hat_shape(paths, baseline=baseline)[list(STATISTICS)].to_numpy()
 
     groups = np.array(["ends_in_interval" if ends_in.get(k, "") else "completed" for k in keys])
     rows = []

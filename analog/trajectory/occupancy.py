@@ -83,12 +83,23 @@ def time_bins(max_age_ma: float, *, bins: str = "fixed", bin_width_ma: float = 1
         if timescale is None:
             raise AnalogError("`bins` was 'stages' but no time scale was given")
         ts = _stage_rows(timescale).sort_values("youngest_ma", kind="stable")
+        name_col = next((c for c in ("name", "stage", "label") if c in ts.columns), None)
         young = ts["youngest_ma"].to_numpy(float)
         old = ts["oldest_ma"].to_numpy(float)
-        if np.any(np.abs(old[:-1] - young[1:]) > 1e-6):
-            raise AnalogError("the bundled time scale's stages are not contiguous; cannot use them as bins")
-        name_col = next((c for c in ("name", "stage", "label") if c in ts.columns), None)
         labels = ts[name_col].astype(str).tolist() if name_col else [f"{o:g}–{y:g} Ma" for o, y in zip(old, young)]
+        # a stretch with no stage (e.g. a series not divided into stages) becomes its own bin,
+        # named after the unit of the time scale that spans exactly that stretch, if there is one
+        gaps = np.flatnonzero(young[1:] - old[:-1] > 1e-6)
+        if np.any(old[:-1] - young[1:] > 1e-6):
+            raise AnalogError("the time scale's stages overlap; cannot use them as bins")
+        for g in gaps[::-1]:
+            lo, hi = old[g], young[g + 1]
+            match = timescale.loc[(np.abs(timescale["youngest_ma"] - lo) < 1e-6)
+                                  & (np.abs(timescale["oldest_ma"] - hi) < 1e-6)]
+            label = str(match[name_col].iloc[0]) if name_col and len(match) else f"{hi:g}–{lo:g} Ma"
+            young = np.insert(young, g + 1, lo)
+            old = np.insert(old, g + 1, hi)
+            labels.insert(g + 1, label)
     else:
         raise AnalogError(f"`bins` was {bins!r} but is expected to be in {{'fixed', 'stages'}}")
     return pd.DataFrame({"bin_index": np.arange(len(young)), "bin_oldest_ma": old, "bin_youngest_ma": young,

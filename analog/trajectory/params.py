@@ -67,6 +67,12 @@ class TrajectoryParams(Params):
     interval_level: float = field(default=0.95, metadata={
         "min": 0.5, "max": 0.999,
         "doc": "Coverage of trajectory_low / trajectory_high and of the hindcast intervals."})
+    null_scale: str = field(default="logit", metadata={
+        "choices": ("logit", "occupancy"),
+        "doc": "Scale on which completed histories are compared with the excursion null: the logit scale "
+               "of the models, heights above each series' own minimum ('logit'), or occupancy with zero "
+               "before the first and after the last bin ('occupancy'). Peak position does not depend on "
+               "the scale; peakedness does."})
     n_null: int = field(default=2000, metadata={
         "min": 100, "max": 1_000_000,
         "doc": "Simulated Brownian excursions per series length in the noise null."})

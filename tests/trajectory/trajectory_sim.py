@@ -5,7 +5,6 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-import pytest
 
 from analog.study import Study, StudyConfig
 
@@ -69,9 +68,9 @@ def planted_histories(seed: int = 3) -> Study:
     for i in range(4):          # extant, flat
         p = np.where(j <= 14, 0.3 + 0.02 * i, 0.0)
         curves[f"flat{i}"], extant[f"flat{i}"] = p, True
-    return simulate_histories(curves, extant=extant, seed=seed)
+    study = simulate_histories(curves, extant=extant, seed=seed)
+    # an extant taxon without any fossil record: must get NaN and a note, never a number
+    extra = pd.DataFrame({"taxon_id": ["nofossil"], "extant": [True], "scientificName": ["Genus nofossil"]})
+    study.taxa = pd.concat([study.taxa, extra], ignore_index=True)
+    return study
 
-
-@pytest.fixture
-def histories_study():
-    return planted_histories()
