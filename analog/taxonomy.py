@@ -22,7 +22,7 @@ import pandas as pd
 from .errors import AnalogWarning, InputError, Problem
 from .study import RANK_COLUMNS
 
-__all__ = ["RANK_LEVELS", "build_rank_tree", "lowest_shared_rank", "shared_rank_depth",
+__all__ = ["RANK_LEVELS", "fill_higher_ranks", "build_rank_tree", "lowest_shared_rank", "shared_rank_depth",
            "taxonomic_distance_matrix"]
 
 # Depth 0 = nothing shared, 1..6 = the rank columns, 7 = the same taxon.
@@ -43,7 +43,55 @@ def _blank(values: pd.Series) -> np.ndarray:
     return (values.isna() | (text == "")).to_numpy()
 
 
-def build_rank_tree(taxa: pd.DataFrame):
+def _rank_text(taxa: pd.DataFrame) -> pd.DataFrame:
+    """Rank columns as trimmed text, blank -> NA."""
+    out = {}
+    for c in RANK_COLUMNS:
+        text = taxa[c].astype("str").str.strip()
+        out[c] = text.where(taxa[c].notna() & (text != ""))
+    return pd.DataFrame(out, index=taxa.index)
+
+
+def fill_higher_ranks(taxa: pd.DataFrame) -> pd.DataFrame:
+    """Fill blank higher ranks from other rows that share a lower rank.
+
+    Parameters
+    ----------
+    taxa : DataFrame
+        With the rank columns ``kingdom ... genus``.
+
+    Returns
+    -------
+    DataFrame
+        A copy with blank rank cells filled where a lower rank of the same row
+        (for example the genus) sits under exactly one name at that higher rank in
+        the other rows. Ambiguous cases (homonyms) stay blank. Rank cells are
+        trimmed text or NA.
+
+    Notes
+    -----
+    Occurrence exports often leave some higher ranks blank on some rows only; without
+    this step two members of one order would look unrelated above the blank level.
+    """
+    out = taxa.copy()
+    ranks = _rank_text(taxa)
+    for depth in range(len(RANK_COLUMNS) - 1, 0, -1):  # genus first: its parents are the most specific
+        low = RANK_COLUMNS[depth]
+        for high in RANK_COLUMNS[:depth]:
+            need = ranks[high].isna() & ranks[low].notna()
+            if not need.any():
+                continue
+            known = ranks.loc[ranks[high].notna() & ranks[low].notna(), [low, high]].drop_duplicates()
+            if known.empty:
+                continue
+            single = known[~known[low].duplicated(keep=False)].set_index(low)[high]
+            ranks.loc[need, high] = ranks.loc[need, low].map(single)
+    for c in RANK_COLUMNS:
+        out[c] = ranks[c]
+    return out
+
+
+def build_rank_tree(taxa: pd.DataFrame, *, fill_blanks: bool = True):
     """Directed graph of the ranks: ``root`` -> kingdom -> ... -> genus -> taxon.
 
     Parameters
@@ -51,6 +99,8 @@ def build_rank_tree(taxa: pd.DataFrame):
     taxa : DataFrame
         Columns ``taxon_id``, ``kingdom, phylum, class, order, family, genus`` (blank
         allowed) and optionally ``scientificName`` and ``taxonRank``.
+    fill_blanks : bool, default=True
+        Fill blank higher ranks first with :func:`fill_higher_ranks`.
 
     Returns
     -------
@@ -73,8 +123,8 @@ def build_rank_tree(taxa: pd.DataFrame):
     g = nx.DiGraph()
     g.add_node(ROOT, rank="root", name="root")
     # Unique rank paths first: a few thousand distinct paths even for 100,000 taxa.
-    ranks = taxa[list(RANK_COLUMNS)].astype("str").where(taxa[list(RANK_COLUMNS)].notna(), "")
-    ranks = ranks.apply(lambda s: s.str.strip())
+    ranks = (fill_higher_ranks(taxa) if fill_blanks else taxa)[list(RANK_COLUMNS)]
+    ranks = _rank_text(ranks).fillna("")
     paths = ranks.drop_duplicates()
     for path in paths.itertuples(index=False):
         parent = ROOT
@@ -138,22 +188,21 @@ def lowest_shared_rank(tree, a, b) -> str:
             return tree.nodes[node]["rank"]
 
 
-def _codes(a: pd.Series, b: pd.Series) -> tuple[np.ndarray, np.ndarray]:
-    """Shared integer codes of two text columns; blank -> -1."""
-    both = pd.concat([a.astype("str").str.strip().where(a.notna() & (a.astype("str").str.strip() != "")),
-                      b.astype("str").str.strip().where(b.notna() & (b.astype("str").str.strip() != ""))],
-                     ignore_index=True)
+def _codes(both: pd.Series, n_a: int) -> tuple[np.ndarray, np.ndarray]:
+    """Integer codes of a column of both tables stacked; blank -> -1."""
     codes, _ = pd.factorize(both, use_na_sentinel=True)
-    return codes[: len(a)], codes[len(a):]
+    return codes[:n_a], codes[n_a:]
 
 
-def shared_rank_depth(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame) -> np.ndarray:
+def shared_rank_depth(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame, *, fill_blanks: bool = True) -> np.ndarray:
     """Depth of the lowest shared rank for every pair (rows of ``taxa_a`` x rows of ``taxa_b``).
 
     Parameters
     ----------
     taxa_a, taxa_b : DataFrame
         Columns ``taxon_id`` and the rank columns.
+    fill_blanks : bool, default=True
+        Fill blank higher ranks first (:func:`fill_higher_ranks` over both tables together).
 
     Returns
     -------
@@ -169,19 +218,24 @@ def shared_rank_depth(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame) -> np.ndarray:
     """
     _check_columns(taxa_a, "taxa_a")
     _check_columns(taxa_b, "taxa_b")
-    depth = np.zeros((len(taxa_a), len(taxa_b)), dtype=np.int8)
+    n_a = len(taxa_a)
+    cols = ["taxon_id", *RANK_COLUMNS]
+    both = pd.concat([taxa_a[cols], taxa_b[cols]], ignore_index=True)
+    both = fill_higher_ranks(both) if fill_blanks else pd.concat([both[["taxon_id"]], _rank_text(both)], axis=1)
+    depth = np.zeros((n_a, len(taxa_b)), dtype=np.int8)
     for level, rank in enumerate(RANK_COLUMNS, start=1):
-        ca, cb = _codes(taxa_a[rank], taxa_b[rank])
+        ca, cb = _codes(both[rank], n_a)
         same = ca[:, None] == cb[None, :]
         same &= (ca >= 0)[:, None]
         depth[same] = level
-    ia, ib = _codes(taxa_a["taxon_id"], taxa_b["taxon_id"])
+    ia, ib = _codes(both["taxon_id"].astype("str"), n_a)
     same = (ia[:, None] == ib[None, :]) & (ia >= 0)[:, None]
     depth[same] = _N_LEVELS
     return depth
 
 
-def taxonomic_distance_matrix(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame, *, dtype=np.float64):
+def taxonomic_distance_matrix(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame, *, dtype=np.float64,
+                              fill_blanks: bool = True):
     """Taxonomic distance and lowest shared rank for every pair of taxa.
 
     Parameters
@@ -190,6 +244,8 @@ def taxonomic_distance_matrix(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame, *, dty
         Columns ``taxon_id`` and ``kingdom, phylum, class, order, family, genus``.
     dtype : numpy float dtype, default=numpy.float64
         Of the distance matrix (``numpy.float32`` halves memory for large tables).
+    fill_blanks : bool, default=True
+        Fill blank higher ranks first (see :func:`fill_higher_ranks`).
 
     Returns
     -------
@@ -211,7 +267,7 @@ def taxonomic_distance_matrix(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame, *, dty
     Clarke, K. R. & Warwick, R. M. (1998). A taxonomic distinctness index and its
     statistical properties. Journal of Applied Ecology 35, 523-531.
     """
-    depth = shared_rank_depth(taxa_a, taxa_b)
+    depth = shared_rank_depth(taxa_a, taxa_b, fill_blanks=fill_blanks)
     dtype = np.dtype(dtype)
     distance = (_N_LEVELS - depth.astype(dtype)) / dtype.type(_N_LEVELS)
     shared = np.asarray(RANK_LEVELS)[depth]

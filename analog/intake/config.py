@@ -44,8 +44,8 @@ def _where(path) -> str:
         return "(top level)"
     if len(parts) == 1:
         return f"[{parts[0]}]"
-    if parts[0] == "traits" and len(parts) >= 3:
-        return f"[traits.{parts[1]}] " + ".".join(parts[2:])
+    if parts[0] == "traits":
+        return (f"[traits.{parts[1]}] " + ".".join(parts[2:])).strip()
     return f"[{parts[0]}] " + ".".join(parts[1:])
 
 
@@ -74,8 +74,10 @@ def _schema_problems(raw: dict, schema: dict, findings: Findings):
                 if key not in err.instance:
                     sub = err.schema.get("properties", {}).get(key, {})
                     what = f"section [{key}]" if not path else f"option '{key}'"
-                    findings.add(STUDY_FILE, f"no {what}", f"a {what} ({sub.get('description', '')})".rstrip(" ()"),
-                                 f"add {what} to study.toml", column=f"{where} {key}" if path else f"[{key}]")
+                    desc = sub.get("description", "")
+                    findings.add(STUDY_FILE, f"no {what}", f"the {what}" + (f" ({desc})" if desc else ""),
+                                 f"add {what} under {where}" if path else f"add {what} to study.toml",
+                                 column=f"{where} {key}" if path else f"[{key}]")
         elif kind == "not" and "required" in err.validator_value:
             key = err.validator_value["required"][0]
             trait_kind = err.instance.get("kind")

@@ -122,6 +122,10 @@ def link_taxa(typed: pd.DataFrame, taxa: pd.DataFrame, schema: TableSchema, file
     return out, drop
 
 
+def _num(value) -> str:
+    return "blank" if pd.isna(value) else f"{value:g}"
+
+
 def _stage_ages(typed, schema: TableSchema, rows, file, findings: Findings):
     """Fill blank numeric ages from stage names; report unknown needed stage names."""
     schema.rule("stage_names")
@@ -182,7 +186,7 @@ def check_fossils(df: pd.DataFrame, columns, schema: TableSchema, taxa: pd.DataF
     schema.rule("age_present")
     no_age = (old.isna() | young.isna()).to_numpy() & ~unreadable & ~stage_bad
     if no_age.any():
-        found = [f"oldest_ma {show(o)}, youngest_ma {show(y)}, no stage name"
+        found = [f"oldest_ma {_num(o)}, youngest_ma {_num(y)}, no stage name"
                  for o, y in zip(old[no_age].head(20), young[no_age].head(20))]
         findings.rows(file, "oldest_ma / youngest_ma", rows[no_age], found,
                       "an age in every row: oldest_ma and youngest_ma (Ma), or stage names",

@@ -159,7 +159,8 @@ def clean_text(series: pd.Series, missing_values) -> pd.Series:
     if series.dtype.kind in "biuf":
         return _numbers_as_text(series)
     s = series.astype("str").str.strip()
-    return s.mask(s.isin(list(missing_values)))
+    blank = s.isin(list(missing_values))
+    return s.mask(blank) if blank.any() else s
 
 
 def _numbers_as_text(series: pd.Series) -> pd.Series:
@@ -257,7 +258,7 @@ def check_fields(df: pd.DataFrame, schema: TableSchema, file: str, findings: Fin
             values, bad = parse_number(raw if raw.dtype.kind in "biuf" else text, decimal_comma=decimal_comma)
             if kind == "integer":
                 frac = values.notna().to_numpy() & (np.mod(values.fillna(0).to_numpy(), 1) != 0)
-                bad |= frac
+                bad = bad | frac
                 values = values.mask(frac).astype("Int64")
         elif kind == "boolean":
             values, bad = parse_boolean(raw if raw.dtype.kind == "b" else text,
@@ -303,7 +304,7 @@ def check_fields(df: pd.DataFrame, schema: TableSchema, file: str, findings: Fin
                     _report(findings, schema, name, bound, file, rows[out],
                             [show(v) for v in text[out].head(50)], f"a number {rng}", fix)
                     values = values.mask(out)
-                    ok &= ~out
+                    ok = ok & ~out
         if "enum" in cons:
             allowed = list(cons["enum"])
             folded = [a.casefold() for a in allowed] if f.get("caseInsensitive") else allowed
@@ -314,14 +315,14 @@ def check_fields(df: pd.DataFrame, schema: TableSchema, file: str, findings: Fin
                         f"one of {allowed}" + (" (case ignored)" if f.get("caseInsensitive") else ""),
                         f"use one of the allowed values in '{name}'")
                 values = values.mask(out)
-                ok &= ~out
+                ok = ok & ~out
         if "pattern" in cons and kind == "string":
             out = ok & ~values.str.fullmatch(cons["pattern"]).fillna(False).to_numpy(bool)
             if out.any():
                 _report(findings, schema, name, "pattern", file, rows[out], [show(v) for v in text[out].head(50)],
                         f"text matching {cons['pattern']!r}", f"correct the values in '{name}'")
                 values = values.mask(out)
-                ok &= ~out
+                ok = ok & ~out
         unique = cons.get("unique") or schema.descriptor.get("primaryKey") == [name]
         if unique and ok.any():
             dup = ok & values.duplicated(keep="first").to_numpy()
