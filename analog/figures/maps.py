@@ -185,7 +185,7 @@ def region_inset(region_id: str, region_result, *, context=None, params: FigureP
         target = ids == region_id
         shown = np.where(target, values, np.nan)
         m.draw(ax, shown, plt.get_cmap(SEQUENTIAL), norm, flagged & target, others="#EDEDED")
-        m.layer[target].boundary.plot(ax=ax, color="black", linewidth=1.4, zorder=4)
+        _add_lines(ax, m.layer[target].boundary, color="black", linewidth=1.4, zorder=4)
         m.frame(ax)
     return fig
 
@@ -244,24 +244,26 @@ class _MapData:
 
     # drawing
     def draw(self, ax, values, cmap, norm, flagged, *, others: str | None = None):
+        self.frame(ax)
         if self.context is not None:
-            polys = self.context[self.context.geom_type.str.contains("Polygon")]
-            lines = self.context[~self.context.geom_type.str.contains("Polygon")]
-            if len(polys):
-                polys.plot(ax=ax, facecolor=CONTEXT_FILL, edgecolor=CONTEXT_LINE, linewidth=0.5, zorder=1)
-            if len(lines):
-                lines.plot(ax=ax, color=CONTEXT_LINE, linewidth=0.7, zorder=1)
+            is_poly = self.context.geom_type.str.contains("Polygon").to_numpy()
+            if is_poly.any():
+                _add_polygons(ax, self.context.geometry[is_poly], facecolor=CONTEXT_FILL, edgecolor=CONTEXT_LINE,
+                              linewidth=0.5, zorder=1)
+            if (~is_poly).any():
+                _add_lines(ax, self.context.geometry[~is_poly], color=CONTEXT_LINE, linewidth=0.7, zorder=1)
+        geoms = self.layer.geometry
         coloured = ~flagged & np.isfinite(values)
         if coloured.any():
-            self.layer[coloured].plot(ax=ax, color=cmap(norm(values[coloured])), linewidth=0, zorder=2)
+            _add_polygons(ax, geoms[coloured], facecolor=cmap(norm(values[coloured])), edgecolor="none",
+                          linewidth=0, zorder=2)
         rest = ~coloured & ~flagged
         if others is not None and rest.any():
-            self.layer[rest].plot(ax=ax, color=others, linewidth=0, zorder=2)
+            _add_polygons(ax, geoms[rest], facecolor=others, edgecolor="none", linewidth=0, zorder=2)
         if flagged.any():
-            self.layer[flagged].plot(ax=ax, facecolor=NO_DATA_COLOUR, edgecolor=NO_DATA_EDGE, hatch=NO_DATA_HATCH,
-                                     linewidth=0, zorder=2)
-        self.layer.boundary.plot(ax=ax, color=REGION_EDGE, linewidth=0.6, zorder=3)
-        self.frame(ax)
+            _add_polygons(ax, geoms[flagged], facecolor=NO_DATA_COLOUR, edgecolor=NO_DATA_EDGE, hatch=NO_DATA_HATCH,
+                          linewidth=0, zorder=2)
+        _add_lines(ax, self.layer.boundary, color=REGION_EDGE, linewidth=0.6, zorder=3)
 
     def frame(self, ax):
         ax.set_xlabel("")
@@ -282,7 +284,7 @@ class _MapData:
         fig = ax.figure
         fs = 5.8 if small else 6.5
         boxes = []
-        fig.canvas.draw()
+        ax.apply_aspect()
         r = fig.canvas.get_renderer()
         if note:
             text = f"{self.result.projection_label}; scale true near the centre" if note_below else \
@@ -312,8 +314,7 @@ class _MapData:
                 texts.append(f"{name}\n{v:+.2f}" if signed else f"{name}\n{_fmt_value(v, self.params.map_value)}")
         # regions smaller on the page than a label are kept clear, so their fill (or hatching)
         # stays visible; their labels move off with a leader line
-        fig = ax.figure
-        fig.canvas.draw()
+        ax.apply_aspect()
         small = []
         for geom in self.layer.geometry:
             x0, y0, x1, y1 = geom.bounds
@@ -321,6 +322,54 @@ class _MapData:
             if (c - a) < 40 or (d - b) < 25:  # pixels at 100 dpi
                 small.append(Bbox([[a - 2, b - 2], [c + 2, d + 2]]))
         place_labels(ax, anchors, texts, obstacles=list(obstacles) + small, fontsize=fontsize, linespacing=1.05)
+
+
+def _rings_path(geom):
+    """One matplotlib Path for a (Multi)Polygon with its holes.
+
+    Matplotlib fills by the non-zero winding rule, so rings are oriented first (exterior
+    counter-clockwise, holes clockwise) for holes to stay empty.
+    """
+    from matplotlib.path import Path
+    from shapely.geometry.polygon import orient
+
+    polys = [orient(p, sign=1.0) for p in getattr(geom, "geoms", [geom])]
+    verts, codes = [], []
+    for poly in polys:
+        for ring in [poly.exterior, *poly.interiors]:
+            xy = np.asarray(ring.coords)[:, :2]
+            c = np.full(len(xy), Path.LINETO, dtype=np.uint8)
+            c[0] = Path.MOVETO
+            c[-1] = Path.CLOSEPOLY
+            verts.append(xy)
+            codes.append(c)
+    return Path(np.concatenate(verts), np.concatenate(codes))
+
+
+def _add_polygons(ax, geoms, **kw):
+    """Polygons as one PatchCollection (drawn directly: no intermediate canvas draws)."""
+    from matplotlib.collections import PatchCollection
+    from matplotlib.patches import PathPatch
+
+    patches = [PathPatch(_rings_path(g)) for g in geoms if g is not None and not g.is_empty]
+    coll = PatchCollection(patches, **kw)
+    ax.add_collection(coll, autolim=False)
+    return coll
+
+
+def _add_lines(ax, geoms, **kw):
+    """(Multi)LineStrings and polygon boundaries as one LineCollection."""
+    from matplotlib.collections import LineCollection
+
+    segs = []
+    for g in geoms:
+        if g is None or g.is_empty:
+            continue
+        for part in getattr(g, "geoms", [g]):
+            segs.append(np.asarray(part.coords)[:, :2])
+    coll = LineCollection(segs, **kw)
+    ax.add_collection(coll, autolim=False)
+    return coll
 
 
 def _clip_context(context, layer, extent, crs):

@@ -82,7 +82,7 @@ def rank_scatter(combined_result, *, data_date: str | None = None, params: Figur
         if len(dis):
             named = pr.set_index("taxon_id").loc[dis["taxon_id"]]
             anchors = np.column_stack([named["analog_rank"], named["trajectory_rank"]])
-            fig.canvas.draw()
+            ax.apply_aspect()
             pts = ax.transData.transform(np.column_stack([pr["analog_rank"], pr["trajectory_rank"]]))
             r = fig.canvas.get_renderer()
             corner = [t.get_window_extent(r) for t in ax.texts]

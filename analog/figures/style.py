@@ -81,7 +81,7 @@ def place_labels(ax, anchors, texts, *, obstacles=(), fontsize: float = 7.5, max
     import numpy as np
 
     fig = ax.figure
-    fig.canvas.draw()
+    ax.apply_aspect()  # fixes the data-to-display transform without a full draw
     renderer = fig.canvas.get_renderer()
     anchors = np.asarray(anchors, dtype=float).reshape(-1, 2)
     kw = {"ha": "center", "va": "center", "fontsize": fontsize, "zorder": 6, "bbox": LABEL_BOX}
