@@ -76,7 +76,7 @@ def model_probabilities(fitset: FitSet, *, threshold: float, horizon_bins: int, 
 def averaged_probability(probs: np.ndarray, weights: np.ndarray) -> np.ndarray:
     """Akaike-weighted average over models; NaN where no model could be fitted."""
     has = weights.sum(axis=1) > 0
-    avg = np.nansum(np.nan_to_num(probs) * weights, axis=1)
+    avg = np.clip(np.nansum(np.nan_to_num(probs) * weights, axis=1), 0.0, 1.0)  # weights sum to 1 ± rounding
     return np.where(has, avg, np.nan)
 
 
