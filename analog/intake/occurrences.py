@@ -7,7 +7,7 @@ import pandas as pd
 from ..errors import AnalogError
 from .findings import Findings, show
 from .schema import TableSchema, check_columns, check_fields, clean_text, close_names
-from .taxa import name_key
+from .taxa import name_key, on_uniques
 
 __all__ = ["check_fossils", "check_modern", "link_taxa", "canonical_name"]
 
@@ -21,7 +21,7 @@ _CANONICAL = r"^(\S+(?:\s+[a-z\u00d7][a-z\u00d7-]*){0,2})"
 
 def canonical_name(names: pd.Series) -> pd.Series:
     """Names without authorship, compared like :func:`~analog.intake.taxa.name_key`."""
-    core = names.str.strip().str.extract(_CANONICAL, expand=False)
+    core = on_uniques(names, lambda u: u.str.strip().str.extract(_CANONICAL, expand=False))
     return name_key(core)
 
 

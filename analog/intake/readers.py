@@ -9,13 +9,13 @@ readers return ``None`` instead of raising.
 from __future__ import annotations
 
 import codecs
+import csv
 import hashlib
 import io
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
-import numpy as np
 import pandas as pd
 
 from .findings import Findings
@@ -92,12 +92,20 @@ _NOT_UTF8 = re.compile("[\udc80-\udcff]")
 
 
 def _decode(body: bytes, label: str, findings: Findings) -> tuple[str, bool]:
-    """Decode UTF-8; report bytes that are not UTF-8 (they become U+FFFD). Returns (text, clean)."""
+    """Check UTF-8; report bytes that are not UTF-8 (they become U+FFFD).
+
+    Returns (header line, clean) for a clean file, (whole text, False) otherwise.
+    """
+    try:
+        body.decode("utf-8")
+    except UnicodeDecodeError:
+        pass
+    else:
+        end = body.find(b"\n")
+        return (body if end < 0 else body[:end]).decode("utf-8"), True
     # surrogateescape maps each undecodable byte to one lone surrogate, which valid text never holds
     text = body.decode("utf-8", errors="surrogateescape")
     first = _NOT_UTF8.search(text)
-    if first is None:
-        return text, True
     fix = ("re-save the file as UTF-8 (in a spreadsheet: 'CSV UTF-8'; in a text editor: "
            "encoding UTF-8); the file is probably in a legacy encoding such as Latin-1 or Windows-1252")
     n = 0
@@ -128,7 +136,7 @@ def _read_text(path: Path, label: str, findings: Findings, wanted) -> TableFile 
     data = path.read_bytes()
     had_bom = data.startswith(codecs.BOM_UTF8)
     body = data[len(codecs.BOM_UTF8):] if had_bom else data
-    if not body.strip():
+    if not body or body.isspace():
         findings.add(label, "an empty file", "a header line and at least one data row",
                      "export the table again; the file has no content")
         return None
@@ -136,27 +144,46 @@ def _read_text(path: Path, label: str, findings: Findings, wanted) -> TableFile 
     end = text.find("\n")
     header = text if end < 0 else text[:end]
     delim = _sniff(header.rstrip("\r"), path.suffix.lower())
-    columns = [c.strip().strip('"').strip() for c in header.rstrip("\r").split(delim)]
-    usecols = None
-    if wanted is not None:
-        keep = set(wanted)
-        usecols = lambda c: str(c).strip() in keep  # noqa: E731
-    source = io.BytesIO(body) if clean else io.StringIO(text)
+    raw_names = next(csv.reader([header.rstrip("\r")], delimiter=delim), [])
+    columns = [c.strip() for c in raw_names]
+    keep = [r for r in raw_names if wanted is None or r.strip() in set(wanted)]
+    data = body if clean else text.encode("utf-8")
     try:
-        df = pd.read_csv(source, sep=delim, dtype=str, keep_default_na=False, na_filter=False,
-                         usecols=usecols, engine="c", encoding="utf-8" if clean else None,
-                         skip_blank_lines=True)
-    except pd.errors.ParserError as exc:
-        findings.add(label, f"a line the table reader could not split ({exc})",
+        df = _arrow_csv(data, delim, raw_names, keep)
+    except Exception as exc:  # noqa: BLE001 - any parser failure is a fault of the file
+        findings.add(label, f"a line the table reader could not split ({str(exc).splitlines()[0][:200]})",
                      f"the same number of {_DELIMITERS[delim]}-separated cells on every line",
                      "check quoting (cells holding the separator must be in double quotes) and stray separators")
         return None
-    except (pd.errors.EmptyDataError, ValueError) as exc:
-        findings.add(label, f"a file that could not be read as a table ({exc})",
-                     "a header line and data rows", "export the table again as CSV UTF-8")
-        return None
     df.columns = [str(c).strip() for c in df.columns]
     return TableFile(df, columns, delimiter=delim, had_bom=had_bom)
+
+
+def _arrow_csv(data: bytes, delim: str, raw_names: list[str], keep: list[str]) -> pd.DataFrame:
+    """Every cell as text (no type guessing), blank cells as empty strings; multi-threaded.
+
+    Of repeated header names only the first column is read (the repeat is reported elsewhere).
+    """
+    import pyarrow as pa
+    import pyarrow.csv as pcsv
+
+    # Arrow names columns by position so repeated or odd header names cannot confuse it.
+    names = [f"c{i}" for i in range(len(raw_names))]
+    first = {}
+    for n, r in zip(names, raw_names):
+        first.setdefault(r, n)
+    kept = [first[r] for r in dict.fromkeys(keep)]
+    read = pcsv.ReadOptions(column_names=names, skip_rows=1)
+    convert = pcsv.ConvertOptions(include_columns=kept, column_types={n: pa.string() for n in kept},
+                                  strings_can_be_null=False, quoted_strings_can_be_null=False)
+    parse = pcsv.ParseOptions(delimiter=delim, newlines_in_values=True)
+    table = pcsv.read_csv(io.BytesIO(data), read_options=read, parse_options=parse, convert_options=convert)
+    df = table.to_pandas()
+    df.columns = [raw_names[int(n[1:])] for n in df.columns]
+    for c in df.columns:
+        if df[c].dtype == object:
+            df[c] = df[c].astype("str")
+    return df
 
 
 def _read_parquet(path: Path, label: str, findings: Findings, wanted) -> TableFile | None:

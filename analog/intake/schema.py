@@ -183,10 +183,26 @@ def parse_number(text: pd.Series, *, decimal_comma: bool = False) -> tuple[pd.Se
     s = text
     if decimal_comma:
         s = s.str.replace(r"^([+-]?\d*),(\d+)$", r"\1.\2", regex=True)
-    values = pd.to_numeric(s, errors="coerce").astype("float64")
-    vals = values.to_numpy()
+    vals = _fast_float(s)
+    if vals is None:
+        vals = pd.to_numeric(s, errors="coerce").astype("float64").to_numpy()
+    values = pd.Series(vals, index=text.index, dtype="float64")
     bad = text.notna().to_numpy() & ~np.isfinite(vals)
     return values.mask(bad), bad
+
+
+def _fast_float(text: pd.Series):
+    """Float array by an Arrow cast when every filled cell is a plain number; else None."""
+    try:
+        import pyarrow as pa
+        import pyarrow.compute as pc
+
+        arr = pa.array(text.array) if hasattr(text.array, "__arrow_array__") else None
+        if arr is None:
+            return None
+        return np.asarray(pc.cast(arr, pa.float64()).to_numpy(zero_copy_only=False), dtype="float64")
+    except Exception:  # noqa: BLE001 - any unparseable cell: fall back to the cell-by-cell parser
+        return None
 
 
 def parse_boolean(text: pd.Series, true_values, false_values) -> tuple[pd.Series, np.ndarray]:
@@ -373,5 +389,4 @@ def _type_words(f: dict, decimal_comma: bool) -> str:
 
 def _empty_column(kind: str, index) -> pd.Series:
     dtype = {"string": "str", "number": "float64", "integer": "Int64", "boolean": "boolean"}.get(kind, "object")
-    return pd.Series(pd.array([None] * len(index), dtype=dtype) if dtype != "float64"
-                     else np.full(len(index), np.nan), index=index)
+    return pd.Series(np.nan if dtype in ("str", "float64") else None, index=index, dtype=dtype)

@@ -10,14 +10,28 @@ from ..study import RANK_COLUMNS, TraitSpec
 from .findings import Findings, show
 from .schema import TableSchema, check_columns, check_fields, clean_text, close_names, parse_boolean, parse_number
 
-__all__ = ["check_taxa", "name_key"]
+__all__ = ["check_taxa", "name_key", "on_uniques"]
 
 _FIXED = ("taxon_id", "scientificName", "taxonRank") + RANK_COLUMNS + ("extant",)
 
 
+def on_uniques(values: pd.Series, func) -> pd.Series:
+    """Apply a text function to the distinct values only (names repeat across millions of rows)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    done = func(pd.Series(uniques, dtype="str"))
+    done = pa.array(done.to_numpy(dtype=object, na_value=None), type=pa.large_string())
+    taken = pc.take(done, pa.array(codes, mask=codes < 0)) if len(done) else pa.nulls(len(codes), pa.large_string())
+    out = pa.chunked_array([taken]).to_pandas()
+    out.index = values.index
+    return out.astype("str")
+
+
 def name_key(names: pd.Series) -> pd.Series:
     """Names as compared between tables: trimmed, inner spaces collapsed, case-folded."""
-    return names.str.strip().str.replace(r"\s+", " ", regex=True).str.casefold()
+    return on_uniques(names, lambda u: u.str.strip().str.replace(r"\s+", " ", regex=True).str.casefold())
 
 
 def check_taxa(df: pd.DataFrame, columns, schema: TableSchema, traits: dict[str, TraitSpec], file: str,
