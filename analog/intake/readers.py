@@ -149,7 +149,13 @@ def _read_text(path: Path, label: str, findings: Findings, wanted) -> TableFile 
     keep = [r for r in raw_names if wanted is None or r.strip() in set(wanted)]
     data = body if clean else text.encode("utf-8")
     try:
-        df = _arrow_csv(data, delim, raw_names, keep)
+        try:
+            df = _arrow_csv(data, delim, raw_names, keep)
+        except Exception:  # noqa: BLE001
+            if delim != "\t":
+                raise
+            # Darwin Core archives write tab-separated text without quoting: a '"' is just a character
+            df = _arrow_csv(data, delim, raw_names, keep, quoting=False)
     except Exception as exc:  # noqa: BLE001 - any parser failure is a fault of the file
         findings.add(label, f"a line the table reader could not split ({str(exc).splitlines()[0][:200]})",
                      f"the same number of {_DELIMITERS[delim]}-separated cells on every line",
@@ -159,7 +165,8 @@ def _read_text(path: Path, label: str, findings: Findings, wanted) -> TableFile 
     return TableFile(df, columns, delimiter=delim, had_bom=had_bom)
 
 
-def _arrow_csv(data: bytes, delim: str, raw_names: list[str], keep: list[str]) -> pd.DataFrame:
+def _arrow_csv(data: bytes, delim: str, raw_names: list[str], keep: list[str], *,
+               quoting: bool = True) -> pd.DataFrame:
     """Every cell as text (no type guessing), blank cells as empty strings; multi-threaded.
 
     Of repeated header names only the first column is read (the repeat is reported elsewhere).
@@ -176,7 +183,8 @@ def _arrow_csv(data: bytes, delim: str, raw_names: list[str], keep: list[str]) -
     read = pcsv.ReadOptions(column_names=names, skip_rows=1)
     convert = pcsv.ConvertOptions(include_columns=kept, column_types={n: pa.string() for n in kept},
                                   strings_can_be_null=False, quoted_strings_can_be_null=False)
-    parse = pcsv.ParseOptions(delimiter=delim, newlines_in_values=True)
+    parse = (pcsv.ParseOptions(delimiter=delim, newlines_in_values=True) if quoting
+             else pcsv.ParseOptions(delimiter=delim, quote_char=False))
     table = pcsv.read_csv(io.BytesIO(data), read_options=read, parse_options=parse, convert_options=convert)
     df = table.to_pandas()
     df.columns = [raw_names[int(n[1:])] for n in df.columns]

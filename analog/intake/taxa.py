@@ -68,6 +68,12 @@ def check_taxa(df: pd.DataFrame, columns, schema: TableSchema, traits: dict[str,
         trait_cols[name] = values
         if spec is not None:
             kept[name] = spec
+    keys = name_key(typed["scientificName"])
+    shared = keys.notna() & keys.duplicated(keep=False)
+    if shared.any():
+        names = typed.loc[shared.to_numpy(), "scientificName"].drop_duplicates().head(5).tolist()
+        findings.warn(f"{file}: {int(shared.sum())} taxa share a scientificName with another taxon "
+                      f"({', '.join(repr(n) for n in names)}); occurrences must name them by taxon_id")
     schema.rule("undeclared_columns")
     extra = [c for c in columns if c not in _FIXED and c not in traits and c not in schema.ignored_columns]
     if extra:

@@ -101,8 +101,13 @@ def test_tab_separated_darwin_core_export_with_extra_columns(study):
     study.modern = dwc
     study.config["inputs"]["modern_occurrences"] = "occurrence.txt"
     study.sep = "\t"
-    with pytest.warns(AnalogWarning, match=r"occurrence\.txt: 1 record\(s\) of 1 name\(s\) not found"):
-        s = load_study(study.write())
+    dwc.loc[6, "verbatimScientificName"] = '"Tarsolum sp.'  # a stray quote: Darwin Core text is not quoted
+    folder = study.write()
+    lines = ["\t".join(dwc.columns)] + ["\t".join(row) for row in dwc.astype(str).to_numpy()]
+    (folder / "occurrence.txt").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    with pytest.warns(AnalogWarning, match=r"occurrence\.txt: 1 row\(s\) matched to taxa after leaving out"), \
+            pytest.warns(AnalogWarning, match=r"occurrence\.txt: 1 record\(s\) of 1 name\(s\) not found"):
+        s = load_study(folder)
     m = s.modern_occurrences
     assert len(m) == n - 1
     assert list(m.columns) == ["occurrenceID", "taxon_id", "decimalLatitude", "decimalLongitude"]
@@ -209,3 +214,21 @@ def test_inventory_lists_files_and_what_was_left_out(study):
     assert "modern_occurrences: 1 (scientificName not in taxa; e.g. Nonesuch alba (1))" in text
     assert "Warnings (1):" in text
     assert "fossil_occurrences  fossil_occurrences.csv" in text
+
+
+def test_ragged_line_is_reported(study):
+    folder = study.write()
+    path = folder / "fossil_occurrences.csv"
+    path.write_text(path.read_text() + "f99,t1,10,9,,,1,1,L1,extra cell\n")
+    with pytest.raises(InputError, match=r"fossil_occurrences\.csv:-:-: found a line the table reader could not "
+                                         r"split \(.*Expected 9 columns, got 10.*\); expected the same number of "
+                                         r"comma-separated cells on every line"):
+        load_study(folder)
+
+
+def test_names_shared_by_two_taxa_warn(study):
+    study.taxa.loc[2, "scientificName"] = "velloria"  # same as t1 after case-folding
+    study.modern = study.modern[study.modern["scientificName"] != "Velloria"]
+    with pytest.warns(AnalogWarning, match=r"taxa\.csv: 2 taxa share a scientificName with another taxon "
+                                           r"\('Velloria', 'velloria'\)"):
+        load_study(study.write())
