@@ -60,6 +60,9 @@ class FirthResult:
         The penalty the fit used.
     n_obs : int
         Number of rows of ``X``.
+    names : tuple of str
+        Column names when ``X`` was a DataFrame (else empty); the default
+        term names of ``summary_frame``.
     """
 
     params: np.ndarray
@@ -474,14 +477,19 @@ def firth_logit(X, y, *, penalty="firth", max_iter=100, tol=1e-8, weights=None):
     ``I(b) = X'WX``, Firth's modified score is
     ``U*(b) = X' (w (y - p) + h (1/2 - p))`` where ``h`` are the diagonal
     elements of ``W^1/2 X I^-1 X' W^1/2``, computed row by row from the
-    Cholesky factor of ``I`` (O(n p^2)). Iterations are
-    ``b <- b + I(b)^-1 U*(b)``, each step capped at 5 logit units and
-    halved until the penalized log-likelihood does not decrease. The
-    estimates are finite under complete and quasi-complete separation
-    (Kosmidis & Firth 2021). Standard errors are ``sqrt(diag(I(b)^-1))``.
-    Profile intervals refit the model with one coefficient fixed, keeping
-    the penalty of the full information matrix, and find the cut-off by
-    Brent's method on the signed root of the profile deviance.
+    Cholesky factor of ``I`` (O(n p^2)). Iterations start as
+    ``b <- b + I(b)^-1 U*(b)`` (Heinze & Schemper 2002); when these slow
+    down (typical near separation) they switch to full Newton steps with the
+    exact Hessian of the penalized log-likelihood, whose penalty part is
+    computed in O(n p^3) without an n x n matrix. Each step is capped at 5
+    logit units and halved until the penalized log-likelihood does not
+    decrease. The estimates are finite under complete and quasi-complete
+    separation (Kosmidis & Firth 2021). Standard errors are
+    ``sqrt(diag(I(b)^-1))``, as in Heinze & Schemper (2002). Profile
+    intervals refit the model with one coefficient fixed, keeping the
+    penalty of the full information matrix, and find the cut-off on the
+    signed root of the profile deviance by secant steps from the Wald guess
+    and a regula falsi inside the bracket.
 
     References
     ----------
