@@ -103,8 +103,12 @@ def link_taxa(typed: pd.DataFrame, taxa: pd.DataFrame, schema: TableSchema, file
         examples = [f"{n} ({c})" for n, c in counts.head(10).items()]
         reason = "scientificName not in taxa" + (" or shared by several taxa" if is_amb.any() else "")
         findings.drop(role, reason, int(unmatched.sum()), examples)
+        taxa_names = taxa["scientificName"].tolist()
+        # a stricter cutoff than for errors: this hint lists names that are probably misspelt
+        close = [(n, c[0]) for n in counts.index[:50] if (c := close_names(str(n), taxa_names, cutoff=0.85))][:5]
+        hint = ("; spelled like taxa of the table: " + ", ".join(f"{n!r} ~ {c!r}" for n, c in close)) if close else ""
         findings.warn(f"{file}: {int(unmatched.sum())} record(s) of {len(counts)} name(s) not found in the taxa "
-                      f"table left out (most frequent: {', '.join(examples[:5])}); matched {n_exact} by name")
+                      f"table left out (most frequent: {', '.join(examples[:5])}); matched {n_exact} by name{hint}")
     else:
         taxa_names = taxa["scientificName"].tolist()
         shown = um_names.head(20)

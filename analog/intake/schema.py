@@ -108,11 +108,11 @@ def load_table_schema(name: str) -> TableSchema:
     return TableSchema(name, descriptor)
 
 
-def close_names(name: str, candidates, n: int = 1) -> list[str]:
-    """Closest spellings of ``name`` among ``candidates``, ignoring case."""
+def close_names(name: str, candidates, n: int = 1, *, cutoff: float = 0.6) -> list[str]:
+    """Closest spellings of ``name`` among ``candidates``, ignoring case (difflib ratio >= cutoff)."""
     candidates = [str(c) for c in candidates]
     folded = {c.casefold(): c for c in candidates}
-    hits = difflib.get_close_matches(name.casefold(), list(folded), n=n, cutoff=0.6)
+    hits = difflib.get_close_matches(name.casefold(), list(folded), n=n, cutoff=cutoff)
     return [folded[h] for h in hits]
 
 
@@ -134,7 +134,7 @@ def check_columns(columns, schema: TableSchema, file: str, findings: Findings) -
             continue
         close = [c for c in close_names(name, [c for c in columns if c not in schema.field_names])]
         fix = (f"rename column '{close[0]}' to '{name}'" if close
-               else f"add a column named '{name}' ({schema.field(name).get('description', '')})")
+               else f"add a column named '{name}' ({schema.field(name).get('description', '').split('. ')[0].rstrip('.')})")
         findings.add(file, f"no column '{name}'", f"a column '{name}' (see data_schemas/{schema.name}.schema.json)",
                      fix, row=1, column=name)
         ok = False

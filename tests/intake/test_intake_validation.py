@@ -388,3 +388,9 @@ def test_vectorized_checks_on_many_rows(study):
     n_unlisted = int((study.modern["scientificName"] == "Unlisted one").sum())
     assert len(s.modern_occurrences) == n - n_unlisted
     assert int(s.dropped.loc[s.dropped["role"] == "modern_occurrences", "count"].sum()) == n_unlisted
+
+
+def test_unmatched_modern_name_close_to_a_taxon_gets_a_spelling_hint(study):
+    study.modern.loc[1, "scientificName"] = "Velloria minr"
+    with pytest.warns(AnalogWarning, match=r"spelled like taxa of the table: 'Velloria minr' ~ 'Velloria minor'"):
+        load_study(study.write())
