@@ -49,8 +49,13 @@ def _pick_taxa(result, study, taxa, max_panels):
     return out
 
 
-def _model_curve(result, taxon, model, ages_dense):
-    """Fitted occupancy curve of ``model`` for one taxon at ``ages_dense`` (Ma), or None."""
+def _model_curve(result, taxon, model, first_age, last_age, ahead):
+    """The preferred model drawn on the occupancy scale: ``(ages, mid, low, high)`` or None.
+
+    Stasis and the curves are drawn over the series and ``ahead`` Myr beyond its last
+    bin. A random walk has no curve through the data; it is drawn as its projection
+    from the last bin over ``ahead`` Myr: expected path and 95% band.
+    """
     from ..trajectory.models import curve_value
 
     fs = result.fitset
@@ -61,17 +66,21 @@ def _model_curve(result, taxon, model, ages_dense):
         return None
     i = idx[0]
     fit = fs.fits[model].take([i])
-    t = fs.batch.age0[i] - ages_dense
-    y1 = fs.batch.y[i, 0]
-    t1 = fs.batch.t[i, 0]
+    if model in ("random_walk", "random_walk_drift"):
+        ages = np.linspace(last_age, last_age - ahead, 40)
+        s = last_age - ages
+        y_last = fs.batch.last(fs.batch.y)[i]
+        mu = fit.params.get("drift_per_myr", np.zeros(1))[0]
+        half = 1.96 * fit.params["step_sd"][0] * np.sqrt(s)
+        mid = y_last + mu * s
+        return ages, _expit(mid), _expit(mid - half), _expit(mid + half)
+    ages = np.linspace(first_age, last_age - ahead, 160)
+    t = fs.batch.age0[i] - ages
     if model == "stasis":
         val = np.full(len(t), fit.params["mean_logit"][0])
-    elif model in ("rise_fall", "rise_fall_asymmetric"):
+    else:
         val = curve_value(fit.params, t[None, :])[0]
-    else:  # expected path of the walk given the first value
-        mu = fit.params.get("drift_per_myr", np.zeros(1))[0]
-        val = y1 + mu * (t - t1)
-    return _expit(val)
+    return ages, _expit(val), None, None
 
 
 def trajectory_panels(result, study, *, taxa=None, max_panels: int = 24) -> dict[str, Figure]:
@@ -98,10 +107,11 @@ def trajectory_panels(result, study, *, taxa=None, max_panels: int = 24) -> dict
     -----
     Points are occupancy per bin; open points are bins with fewer sampled units than
     ``min_sampled`` (kept in the fits, shown so they are not over-read). The line is
-    the preferred model on the occupancy scale (inverse logit of the fitted values;
-    for the random walks, the expected path from the first bin). The dotted line is
-    the quasi-extinction threshold; the shaded strip right of 0 Ma is the projection
-    horizon of extant taxa.
+    the preferred model on the occupancy scale (inverse logit of the fitted values);
+    a random walk, which has no curve through the data, is drawn as its projection
+    from the last bin with a 95% band. The dotted line is the quasi-extinction
+    threshold; the shaded strip after the last bin of an extant taxon is the projection
+    horizon the score refers to.
     """
     names = dict(zip(study.taxa["taxon_id"].astype(str), study.taxa["scientificName"].astype(str)))
     occ = result.occupancy
@@ -128,18 +138,22 @@ def trajectory_panels(result, study, *, taxa=None, max_panels: int = 24) -> dict
                 ax.plot(age[~low], val[~low], "o", ms=3.2, color=TRAJECTORY_COLOUR)
                 ax.plot(age[low], val[low], "o", ms=3.2, mfc="white", mec=TRAJECTORY_COLOUR)
                 is_extant = taxon in risk.index
-                lo_age = -horizon if is_extant else np.nanmin(age) - 0.5 * result.step_myr
+                seen = age[np.isfinite(val)] if np.isfinite(val).any() else age
+                first_age, last_age = float(np.max(seen)), float(np.min(seen))
+                ahead = horizon if is_extant else 0.0
+                lo_age = last_age - ahead if is_extant else np.nanmin(age) - 0.5 * result.step_myr
                 hi_age = np.nanmax(age) + 0.5 * result.step_myr
-                reading, model = "", ""
+                reading = ""
                 if taxon in pref.index:
-                    model = pref.at[taxon, "model"]
                     reading = pref.at[taxon, "reading"]
-                    dense = np.linspace(hi_age, lo_age if is_extant else np.nanmin(age), 120)
-                    curve = _model_curve(result, taxon, model, dense)
-                    if curve is not None:
-                        ax.plot(dense, curve, color=_CURVE_COLOUR, lw=1.3)
+                    drawn = _model_curve(result, taxon, pref.at[taxon, "model"], first_age, last_age, ahead)
+                    if drawn is not None:
+                        ages_c, mid, low_c, high_c = drawn
+                        ax.plot(ages_c, mid, color=_CURVE_COLOUR, lw=1.3)
+                        if low_c is not None:
+                            ax.fill_between(ages_c, low_c, high_c, color=_CURVE_COLOUR, alpha=0.18, lw=0)
                 if is_extant:
-                    ax.axvspan(0, -horizon, color=NO_DATA_COLOUR, alpha=0.6, lw=0)
+                    ax.axvspan(last_age, last_age - ahead, color=NO_DATA_COLOUR, alpha=0.6, lw=0, zorder=0)
                 ax.axhline(thr, color="#555555", lw=0.7, ls=":")
                 ax.set_xlim(hi_age, lo_age)
                 top = np.nanmax(val) if np.isfinite(val).any() else thr
@@ -164,7 +178,7 @@ def trajectory_panels(result, study, *, taxa=None, max_panels: int = 24) -> dict
             handles = [Line2D([], [], color=TRAJECTORY_COLOUR, marker="o", ms=4, lw=0.8, label="occupancy"),
                        Line2D([], [], color=TRAJECTORY_COLOUR, marker="o", ms=4, mfc="white", lw=0,
                               label=f"bin with < {p.min_sampled} sampled units"),
-                       Line2D([], [], color=_CURVE_COLOUR, lw=1.3, label="preferred model"),
+                       Line2D([], [], color=_CURVE_COLOUR, lw=1.3, label="preferred model (walks: projection, 95% band)"),
                        Line2D([], [], color="#555555", lw=0.7, ls=":", label=f"threshold ({thr:g})")]
             if key != "trajectories_extinct":
                 handles.append(Patch(color=NO_DATA_COLOUR, label=f"projection horizon ({horizon:g} Myr)"))

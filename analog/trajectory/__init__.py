@@ -16,7 +16,7 @@ import pandas as pd
 from ..errors import AnalogWarning
 from .extinction import averaged_probability, bootstrap_probabilities, model_probabilities
 from .hindcast import HINDCAST_COLUMNS, run_hindcast
-from .models import MODEL_LABELS, FitSet, SeriesBatch, fit_models, reading_label
+from .models import FitSet, SeriesBatch, fit_models, reading_label
 from .null import NULL_COLUMNS, noise_null
 from .occupancy import build_occupancy
 from .params import MODEL_NAMES, PARAMS, TrajectoryParams
@@ -187,7 +187,7 @@ def run_trajectory(study, params: TrajectoryParams | None = None, *, rng: np.ran
 
     def step(label, done):
         if progress is not None:
-            progress(f"trajectory: {label}", done, total)
+            progress(label, done, total)
 
     step("occupancy", 0)
     timescale = None

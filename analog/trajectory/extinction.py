@@ -141,6 +141,6 @@ def bootstrap_probabilities(fitset: FitSet, *, threshold: float, horizon_bins: i
         out[:, done:done + b] = avg
         done += b
         if progress is not None:
-            progress("trajectory: bootstrap", done, n_boot)
+            progress("bootstrap", done, n_boot)
     out[w.sum(axis=1) <= 0] = np.nan
     return out

@@ -445,19 +445,6 @@ def curve_value(params: dict[str, np.ndarray], t: np.ndarray) -> np.ndarray:
     return np.where(np.isnan(pt), line, peaked)
 
 
-def fitted_values(name: str, fit: ModelFit, batch: SeriesBatch) -> np.ndarray:
-    """Expected value of each observation given the previous one (for plots and residuals)."""
-    if name == "stasis":
-        return np.broadcast_to(fit.params["mean_logit"][:, None], batch.t.shape).copy()
-    if name in ("rise_fall", "rise_fall_asymmetric"):
-        return curve_value(fit.params, batch.t)
-    mu = fit.params.get("drift_per_myr", np.zeros(len(batch)))
-    out = np.full(batch.t.shape, np.nan)
-    out[:, 1:] = batch.y[:, :-1] + mu[:, None] * np.diff(batch.t, axis=1)
-    out[:, 0] = batch.y[:, 0]
-    return out
-
-
 def simulate(name: str, fit: ModelFit, batch: SeriesBatch, rng: np.random.Generator) -> np.ndarray:
     """Simulate new series from a fitted model at the batch's times, keeping the first value.
 

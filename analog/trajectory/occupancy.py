@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from ..errors import AnalogError, AnalogWarning, InputError, Problem
+from ..errors import AnalogError
 
 __all__ = ["OccupancyTable", "time_bins", "sampling_units", "build_occupancy", "EQUAL_AREA_CRS"]
 

@@ -1,7 +1,6 @@
 """Hindcast cases and the skill table."""
 import numpy as np
 import pandas as pd
-import pytest
 
 from analog.trajectory.hindcast import HINDCAST_COLUMNS, hindcast_cases, run_hindcast
 

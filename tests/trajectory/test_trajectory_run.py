@@ -85,8 +85,8 @@ def test_progress_is_reported():
     run_trajectory(planted_histories(), FAST, rng=np.random.default_rng(1),
                    progress=lambda label, done, total: seen.append((label, done, total)))
     labels = [s[0] for s in seen]
-    assert labels[0] == "trajectory: occupancy" and labels[-1] == "trajectory: done"
-    assert "trajectory: bootstrap" in labels
+    assert labels[0] == "occupancy" and labels[-1] == "done"
+    assert "bootstrap" in labels and seen[-1][1] == seen[-1][2]
 
 
 def test_options_are_validated():
