@@ -114,8 +114,10 @@ def _drivers(contributions: pd.DataFrame | None, n_drivers: int) -> pd.Series:
         return pd.Series(dtype=object)
     c = contributions[["taxon_id", "term", "log_odds_contribution"]].copy()
     c["taxon_id"] = c["taxon_id"].astype(str)
-    c = c[c["log_odds_contribution"].notna()]
+    # the intercept is common to every taxon: it does not say what sets this taxon apart
+    c = c[c["log_odds_contribution"].notna() & ~c["term"].astype(str).str.lower().str.strip("()").eq("intercept")]
     c["abs"] = c["log_odds_contribution"].abs()
+    c = c[c["abs"] >= 0.005]  # terms that round to +0.00 push nothing
     c = c.sort_values(["taxon_id", "abs", "term"], ascending=[True, False, True])
     c = c.groupby("taxon_id", sort=False).head(n_drivers)
     c["text"] = c["term"].astype(str) + " (" + c["log_odds_contribution"].map(lambda v: f"{v:+.2f}") + ")"

@@ -407,7 +407,7 @@ def _scale_bar(ax, extent, *, fontsize: float):
             ax.add_patch(Rectangle((x0, y0), L / 2, h, facecolor="#333333", edgecolor="#333333", lw=0.6, zorder=7)),
             ax.add_patch(Rectangle((x0 + L / 2, y0), L / 2, h, facecolor="white", edgecolor="#333333", lw=0.6,
                                    zorder=7))]
-    for frac, text in ((0, "0"), (0.5, f"{length_km / 2:g}"), (1, f"{length_km:g} km")):  # labels above
+    for frac, text in ((0, "0"), (1, f"{length_km:g} km")):  # labels above the bar's ends
         arts.append(ax.text(x0 + frac * L, y0 + h * 1.6, text, ha="center", va="bottom", fontsize=fontsize,
                             zorder=7, color="#333333"))
     return arts
@@ -458,16 +458,21 @@ def _colourbar(fig, cax, cmap, norm, label, *, orientation):
 
 
 def _no_data_legend(fig, m, *, anchor, loc: str = "upper left"):
-    if not m.flagged(np.zeros(len(m.layer))).any():
-        return
-    crit = getattr(m.result.params, "min_taxa", None)
-    recs = getattr(m.result.params, "min_region_records", None)
-    label = "Insufficient data"
-    if crit is not None:
-        label += f"\n(< {crit} taxa or\n< {recs} records)"
-    fig.legend(handles=[Patch(facecolor=NO_DATA_COLOUR, edgecolor=NO_DATA_EDGE, hatch=NO_DATA_HATCH, label=label)],
-               loc=loc, bbox_to_anchor=anchor, fontsize=7, handlelength=2.2, handleheight=1.6,
-               frameon=False)
+    """Key for the hatched insufficient-data regions and the context layer, when shown."""
+    handles = []
+    if m.flagged(np.zeros(len(m.layer))).any():
+        crit = getattr(m.result.params, "min_taxa", None)
+        recs = getattr(m.result.params, "min_region_records", None)
+        label = "Insufficient data"
+        if crit is not None:
+            label += f"\n(< {crit} taxa or\n< {recs} records)"
+        handles.append(Patch(facecolor=NO_DATA_COLOUR, edgecolor=NO_DATA_EDGE, hatch=NO_DATA_HATCH, label=label))
+    if m.context is not None and m.context.geom_type.str.contains("Polygon").any():
+        handles.append(Patch(facecolor=CONTEXT_FILL, edgecolor=CONTEXT_LINE, linewidth=0.5,
+                             label="Context layer\n(not assessed)"))
+    if handles:
+        fig.legend(handles=handles, loc=loc, bbox_to_anchor=anchor, fontsize=7, handlelength=2.2, handleheight=1.6,
+                   frameon=False)
 
 
 def _title(fig, title: str, subtitle: str):
@@ -479,5 +484,7 @@ def _title(fig, title: str, subtitle: str):
 def _caption(region_result, params, taxa: str = "assessed taxa") -> str:
     what = ("Colour: mean probability of loss among a region's " + taxa if params.map_value == "mean_p"
             else "Colour: expected number of " + taxa + " lost")
-    return (f"{what}, from modern occurrence records. Hatched: too few taxa or records to map "
-            f"(not low risk). {region_result.unassigned} records fell outside every region.")
+    hatched = (region_result.region_summary["data_flag"] != "ok").any()
+    return (f"{what}, from modern occurrence records."
+            + (" Hatched: too few taxa or records to map (not low risk)." if hatched else "")
+            + f" {region_result.unassigned} records fell outside every region.")

@@ -88,7 +88,7 @@ def rank_scatter(combined_result, *, data_date: str | None = None, params: Figur
             corner = [t.get_window_extent(r) for t in ax.texts]
             dots = [Bbox([[x - 4, y - 4], [x + 4, y + 4]]) for x, y in pts]
             place_labels(ax, anchors, named["scientificName"].astype(str).tolist(), obstacles=dots + corner,
-                         fontsize=7, style="italic")
+                         fontsize=7, style="italic", anchor_dot=False)
 
         handles = [Patch(facecolor=TIER_COLOURS[t], edgecolor="#333333", linewidth=0.45, label=t)
                    for t in TIER_NAMES if (pr["tier"] == t).any()]
@@ -131,9 +131,9 @@ def top_taxa_bars(combined_result, *, data_date: str | None = None, params: Figu
     n = len(top)
     interval = getattr(combined_result.params, "interval", 0.9)
     with figure_style():
-        fig = plt.figure(figsize=(params.width_in, 1.55 + 0.26 * max(n, 3)))
+        fig = plt.figure(figsize=(params.width_in, 2.0 + 0.26 * max(n, 3)))
         H = fig.get_figheight()
-        ax = fig.add_axes([0.3, 0.85 / H, 0.55, (H - 1.55) / H])
+        ax = fig.add_axes([0.3, 1.3 / H, 0.55, (H - 2.0) / H])
         y = np.arange(n)
         colours = [TIER_COLOURS.get(t, "#FFFFFF") for t in top["tier"]]
         ax.barh(y, top["combined_p"], color=colours, height=0.68, zorder=2)
@@ -142,9 +142,9 @@ def top_taxa_bars(combined_result, *, data_date: str | None = None, params: Figu
         ax.errorbar(top["combined_p"], y, xerr=[lo, hi], fmt="none", ecolor="black", elinewidth=0.9, capsize=2.2,
                     zorder=3)
         ax.scatter(top["analog_p"], y, marker="o", s=16, facecolor=ANALOG_COLOUR, edgecolor="white", linewidths=0.5,
-                   zorder=4)
+                   zorder=4, clip_on=False)
         ax.scatter(top["trajectory_p"], y, marker="D", s=14, facecolor=TRAJECTORY_COLOUR, edgecolor="white",
-                   linewidths=0.5, zorder=4)
+                   linewidths=0.5, zorder=4, clip_on=False)
         ax.set_yticks(y)
         ax.set_yticklabels([f"{i + 1}. {name}" for i, name in enumerate(top["scientificName"].astype(str))],
                            fontstyle="italic", fontsize=7.5)
@@ -165,8 +165,9 @@ def top_taxa_bars(combined_result, *, data_date: str | None = None, params: Figu
                            label="analog evidence"),
                     Line2D([], [], marker="D", ls="none", markerfacecolor=TRAJECTORY_COLOUR, markeredgecolor="white",
                            markersize=5, label="trajectory evidence")]
-        # the bars shorten down the chart, so the lower right is free for the key
-        ax.legend(handles=handles, loc="lower right", fontsize=7, framealpha=0.9, frameon=True, edgecolor="none")
+        # the key sits under the axis, clear of bars of any length
+        fig.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, 0.75 / H), ncol=4, fontsize=7,
+                   columnspacing=1.2, handlelength=1.6)
         w = combined_result.weights
         source = {"skill": "from each line's measured skill", "user": "set in study.toml",
                   "single line": "one line of evidence only"}.get(w["source"], w["source"])

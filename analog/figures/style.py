@@ -60,7 +60,7 @@ def add_caption(fig, text: str, *, data_date: str | None = None):
 # Analog minus trajectory on maps: ColorBrewer PuOr, orange where the trajectory line is higher
 # (as TRAJECTORY_COLOUR), purple where the analog line is higher; centred on zero.
 DIFFERENCE_CMAP = "PuOr"
-CONTEXT_FILL = "#F2F0EB"     # context polygons (e.g. land) under the regions
+CONTEXT_FILL = "#E4E1D9"     # context polygons (e.g. land) under the regions; keyed on maps
 CONTEXT_LINE = "#9C9C9C"     # context lines (e.g. a coastline)
 REGION_EDGE = "#4D4D4D"      # region borders
 NO_DATA_EDGE = "#7A7A7A"     # hatch lines of insufficient-data regions
@@ -69,14 +69,14 @@ LEADER_LINE = {"color": "#555555", "linewidth": 0.6}
 
 
 def place_labels(ax, anchors, texts, *, obstacles=(), fontsize: float = 7.5, max_iter: int = 400,
-                 pad_px: float = 2.0, **text_kw):
+                 pad_px: float = 2.0, anchor_dot: bool = True, **text_kw):
     """Write ``texts`` near ``anchors`` (data coordinates) so that no two labels overlap.
 
     Labels start centred on their anchors and are pushed apart, pair by pair along the axis of
     least overlap, until none overlap each other, the ``obstacles`` (display-space Bboxes such
     as a scale bar) or the axes edge. The order of pushes is fixed, so the result is
-    deterministic. A label that ends up away from its anchor gets a leader line and a dot.
-    Returns the Text artists.
+    deterministic. A label that ends up away from its anchor gets a leader line (and a dot at
+    the anchor when ``anchor_dot``). Returns the Text artists.
     """
     import numpy as np
 
@@ -97,6 +97,8 @@ def place_labels(ax, anchors, texts, *, obstacles=(), fontsize: float = 7.5, max
     obs = [(np.array([(b.x0 + b.x1) / 2, (b.y0 + b.y1) / 2]), np.array([b.width / 2, b.height / 2]))
            for b in obstacles]
     n = len(arts)
+    lo_box = np.array([box.x0, box.y0]) + half
+    hi_box = np.array([box.x1, box.y1]) - half
     for _ in range(max_iter):
         moved = False
         for i in range(n):
@@ -113,8 +115,17 @@ def place_labels(ax, anchors, texts, *, obstacles=(), fontsize: float = 7.5, max
                 d = pos[i] - centre
                 over = half[i] + h - np.abs(d)
                 if (over > 0).all():
-                    axis = int(over[1] < over[0])
-                    pos[i, axis] += (np.sign(d[axis]) or 1.0) * (over[axis] + 0.5)
+                    # least move first; if that leaves the axes, go round the other way or axis
+                    tries = sorted(((over[a] + 0.5, a, np.sign(d[a]) or 1.0) for a in (0, 1)))
+                    tries += [(2 * h[a] + half[i, a] * 2 - over[a] + 0.5, a, -(np.sign(d[a]) or 1.0))
+                              for a in (0, 1)]
+                    for dist, a, sgn in tries:
+                        new = pos[i, a] + sgn * dist
+                        if lo_box[i, a] <= new <= hi_box[i, a]:
+                            pos[i, a] = new
+                            break
+                    else:
+                        pos[i, tries[0][1]] += tries[0][2] * tries[0][0]
                     moved = True
         lo = np.array([box.x0, box.y0]) + half
         hi = np.array([box.x1, box.y1]) - half
@@ -127,5 +138,6 @@ def place_labels(ax, anchors, texts, *, obstacles=(), fontsize: float = 7.5, max
         if np.hypot(*(p - s)) > 0.8 * h[1]:
             end = inv.transform(p)
             ax.plot([anchor[0], end[0]], [anchor[1], end[1]], zorder=5, **LEADER_LINE)
-            ax.plot([anchor[0]], [anchor[1]], marker="o", markersize=1.8, color=LEADER_LINE["color"], zorder=5)
+            if anchor_dot:
+                ax.plot([anchor[0]], [anchor[1]], marker="o", markersize=1.8, color=LEADER_LINE["color"], zorder=5)
     return arts
