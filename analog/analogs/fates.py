@@ -34,6 +34,8 @@ class FateDraws:
     lost: np.ndarray
     first: np.ndarray
     last: np.ndarray
+    coarse_occurrences: int = 0
+    coarse_only_taxa: tuple[str, ...] = ()
 
     @property
     def n_draws(self) -> int:
@@ -141,7 +143,8 @@ def window_fates(first: np.ndarray, last: np.ndarray, oldest: np.ndarray, younge
 
 def compute_fates(taxa: pd.DataFrame, occurrences: pd.DataFrame, intervals: pd.DataFrame, *,
                   age_draws: int = 20, at_risk_rule: str = "overlap", drop_singletons: bool = True,
-                  range_through: bool = True, rng: np.random.Generator) -> FateDraws:
+                  range_through: bool = True, max_age_range: float = 0.0,
+                  rng: np.random.Generator) -> FateDraws:
     """Fates of every fossil taxon in every interval, over age draws.
 
     Parameters
@@ -159,6 +162,9 @@ def compute_fates(taxa: pd.DataFrame, occurrences: pd.DataFrame, intervals: pd.D
     drop_singletons : bool, default=True
     range_through : bool, default=True
         If false, a taxon is at risk only in windows holding one of its occurrences.
+    max_age_range : float, default=0.0
+        Occurrences whose age range (``oldest_ma - youngest_ma``) is wider than this many
+        Myr are left out (0 keeps all). A taxon known only from such occurrences has no fates.
     rng : numpy.random.Generator
 
     Returns
@@ -181,6 +187,13 @@ def compute_fates(taxa: pd.DataFrame, occurrences: pd.DataFrame, intervals: pd.D
     Signor, P. W. & Lipps, J. H. (1982). Sampling bias, gradual extinction patterns and
     catastrophes in the fossil record. GSA Special Paper 190, 291-296.
     """
+    coarse = 0
+    all_ids = np.unique(occurrences["taxon_id"].astype(str).to_numpy())
+    if max_age_range and max_age_range > 0:
+        width = occurrences["oldest_ma"].to_numpy(dtype=float) - occurrences["youngest_ma"].to_numpy(dtype=float)
+        fine = width <= max_age_range
+        coarse = int((~fine).sum())
+        occurrences = occurrences[fine]
     occ_ids = occurrences["taxon_id"].astype(str).to_numpy()
     taxon_ids = np.unique(occ_ids)
     codes = np.searchsorted(taxon_ids, occ_ids)
@@ -192,9 +205,11 @@ def compute_fates(taxa: pd.DataFrame, occurrences: pd.DataFrame, intervals: pd.D
     w_old = intervals["oldest_ma"].to_numpy(dtype=float)
     w_young = intervals["youngest_ma"].to_numpy(dtype=float)
     n_draws = int(age_draws)
+    coarse_only = tuple(np.setdiff1d(all_ids, taxon_ids))
     if taxon_ids.size == 0:
         empty = np.zeros((n_draws, len(int_ids), 0), dtype=bool)
-        return FateDraws(taxon_ids, int_ids, empty, empty.copy(), np.zeros((n_draws, 0)), np.zeros((n_draws, 0)))
+        return FateDraws(taxon_ids, int_ids, empty, empty.copy(), np.zeros((n_draws, 0)), np.zeros((n_draws, 0)),
+                         coarse, coarse_only)
 
     starts = np.flatnonzero(np.r_[True, codes[1:] != codes[:-1]])
     ages = draw_ages(oldest, youngest, n_draws=n_draws, rng=rng)
@@ -211,4 +226,4 @@ def compute_fates(taxa: pd.DataFrame, occurrences: pd.DataFrame, intervals: pd.D
             sampled[:, i, :] = np.logical_or.reduceat(inside, starts, axis=1)
     at_risk, lost = window_fates(first, last, w_old, w_young, at_risk_rule=at_risk_rule,
                                  drop_singletons=drop_singletons, sampled=sampled)
-    return FateDraws(taxon_ids, int_ids, at_risk, lost, first, last)
+    return FateDraws(taxon_ids, int_ids, at_risk, lost, first, last, coarse, coarse_only)

@@ -26,6 +26,11 @@ class AnalogParams(Params):
         "doc": "Which taxa count as at risk in an interval. 'overlap': the taxon's range (first to last "
                "occurrence) reaches into the interval window. 'crossers': only taxa whose first "
                "occurrence is older than the window (they cross its older boundary; Foote 2000)."})
+    max_age_range: float = field(default=10.0, metadata={
+        "min": 0.0, "max": 1000.0,
+        "doc": "Occurrences dated more coarsely than this (oldest_ma - youngest_ma, Myr) are not used "
+               "for first and last appearances: they cannot place a range end relative to a window of a "
+               "few Myr. 0 keeps every occurrence. Default 10 Myr, the tool's default bin width."})
     drop_singletons: bool = field(default=True, metadata={
         "doc": "Leave out of an interval taxa whose whole observed range lies inside that window "
                "(single-occurrence and single-interval taxa); they would all count as lost."})
@@ -44,7 +49,7 @@ class AnalogParams(Params):
     ci_method: str = field(default="profile", metadata={
         "choices": ("profile", "wald"),
         "doc": "Per-interval confidence intervals: profile penalized likelihood or Wald."})
-    profile_draws: int = field(default=4, metadata={
+    profile_draws: int = field(default=1, metadata={
         "min": 1, "max": 1000,
         "doc": "With profile intervals: number of distinct age draws per interval whose profile "
                "intervals are computed (they are slow); their average shape is widened by Rubin's "

@@ -1,9 +1,12 @@
 """Analog risk per modern taxon: pooled trait model shrunk toward its relatives' observed fates."""
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
-import pandas as pd
 from scipy.special import expit, logit
+
+from ..errors import AnalogWarning
 
 from .selectivity import fit_design, pool_terms
 
@@ -81,7 +84,7 @@ def bootstrap_risk(*, X_fossil: np.ndarray, complete: np.ndarray, at_risk: np.nd
                    used: np.ndarray, weights_all: np.ndarray, X_modern: np.ndarray, fill: np.ndarray,
                    beta_full: np.ndarray, index: np.ndarray, similarity: np.ndarray,
                    pool_method: str, hksj: str, prior_strength: float, n_boot: int,
-                   rng: np.random.Generator, progress=None) -> tuple[np.ndarray, int]:
+                   rng: np.random.Generator, progress=None) -> tuple[np.ndarray, int, int]:
     """Bootstrap draws of analog risk, resampling fossil taxa.
 
     Parameters
@@ -105,6 +108,9 @@ def bootstrap_risk(*, X_fossil: np.ndarray, complete: np.ndarray, at_risk: np.nd
     draws : ndarray, shape (E, n_boot)
     n_fallback : int
         Replicate-terms that could not be estimated and used the full-data value.
+    n_warnings : int
+        Numerical warnings raised inside the replicates (fits or pooling that did not
+        settle); they are counted here instead of being repeated.
 
     Notes
     -----
@@ -114,36 +120,48 @@ def bootstrap_risk(*, X_fossil: np.ndarray, complete: np.ndarray, at_risk: np.nd
     weights, and recomputes the relatives' evidence with each relative counted as often
     as it was resampled.
     """
-    F = X_fossil.shape[0]
-    D = at_risk.shape[0]
     E = X_modern.shape[0]
     Xc = np.nan_to_num(X_fossil)
     w_used = weights_all[used]
     out = np.empty((E, n_boot))
     fallback = 0
     step = max(1, n_boot // 20)
-    for b in range(n_boot):
-        idx = rng.integers(0, F, size=F)
-        d = int(rng.integers(0, D)) if D > 1 else 0
-        counts = np.bincount(idx, minlength=F).astype(float)
-        est = np.full((used.size, Xc.shape[1]), np.nan)
-        var = np.full_like(est, np.nan)
-        for n, i in enumerate(used):
-            rows = idx[at_risk[d, i, idx] & complete[idx]]
-            beta_i, var_i, _, _ = fit_design(Xc[rows], lost[d, i, rows], ci=None)
-            est[n], var[n] = beta_i, var_i
-        beta = pool_terms(est, var, w_used, method=pool_method, hksj=hksj,
-                          intervals=False)["estimate"].to_numpy(dtype=float)
-        bad = ~np.isfinite(beta)
-        fallback += int(bad.sum())
-        beta = np.where(bad, beta_full, beta)
-        lp, _ = model_log_odds(X_modern, beta, fill)
-        trials, losses = relative_evidence(index, similarity, at_risk[d].astype(float), lost[d].astype(float),
-                                           weights_all, counts=counts)
-        out[:, b] = shrink_to_relatives(expit(lp), trials, losses, prior_strength=prior_strength)
-        if progress is not None and ((b + 1) % step == 0 or b + 1 == n_boot):
-            progress("bootstrap", b + 1, n_boot)
-    return out, fallback
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", AnalogWarning)
+        for b in range(n_boot):
+            fallback += _replicate(b, out, Xc, complete, at_risk, lost, used, w_used, weights_all, X_modern, fill,
+                                   beta_full, index, similarity, pool_method, hksj, prior_strength, rng)
+            if progress is not None and ((b + 1) % step == 0 or b + 1 == n_boot):
+                progress("bootstrap", b + 1, n_boot)
+    n_warn = sum(issubclass(w.category, AnalogWarning) for w in caught)
+    return out, fallback, n_warn
+
+
+def _replicate(b, out, Xc, complete, at_risk, lost, used, w_used, weights_all, X_modern, fill, beta_full,
+               index, similarity, pool_method, hksj, prior_strength, rng) -> int:
+    """One bootstrap replicate, written into ``out[:, b]``; returns the number of fallbacks."""
+    F = Xc.shape[0]
+    D = at_risk.shape[0]
+    idx = rng.integers(0, F, size=F)
+    d = int(rng.integers(0, D)) if D > 1 else 0
+    counts = np.bincount(idx, minlength=F).astype(float)
+    est = np.full((used.size, Xc.shape[1]), np.nan)
+    var = np.full_like(est, np.nan)
+    drawn = counts > 0
+    for n, i in enumerate(used):
+        rows = np.flatnonzero(drawn & at_risk[d, i] & complete)
+        # resampled taxa enter once with their count as a frequency weight (same fit as repeated
+        # rows, fewer rows); estimates only, so a looser tolerance than the main fits
+        est[n], var[n], _, _ = fit_design(Xc[rows], lost[d, i, rows], ci=None, tol=1e-6, weights=counts[rows])
+    beta = pool_terms(est, var, w_used, method=pool_method, hksj=hksj,
+                      intervals=False)["estimate"].to_numpy(dtype=float)
+    bad = ~np.isfinite(beta)
+    beta = np.where(bad, beta_full, beta)
+    lp, _ = model_log_odds(X_modern, beta, fill)
+    trials, losses = relative_evidence(index, similarity, at_risk[d].astype(float), lost[d].astype(float),
+                                       weights_all, counts=counts)
+    out[:, b] = shrink_to_relatives(expit(lp), trials, losses, prior_strength=prior_strength)
+    return int(bad.sum())
 
 
 def relatives_shift(p_model: np.ndarray, p_final: np.ndarray) -> np.ndarray:

@@ -187,31 +187,32 @@ def build_design(taxa: pd.DataFrame, traits: dict[str, TraitSpec]) -> Design:
 
 def _usable_columns(X: np.ndarray) -> np.ndarray:
     """Columns that vary (plus the intercept) and are not linear combinations of earlier ones."""
-    p = X.shape[1]
-    keep = [0]
-    for j in range(1, p):
-        col = X[:, j]
-        if np.ptp(col) == 0:
-            continue
-        trial = keep + [j]
-        if np.linalg.matrix_rank(X[:, trial]) == len(trial):
-            keep.append(j)
-    return np.asarray(keep)
+    varies = np.ptp(X, axis=0) > 0
+    varies[0] = True
+    keep = np.flatnonzero(varies)
+    if np.linalg.matrix_rank(X[:, keep]) == keep.size:
+        return keep
+    chosen = [0]
+    for j in keep[1:]:  # rare: greedy search for a full-rank subset
+        if np.linalg.matrix_rank(X[:, chosen + [j]]) == len(chosen) + 1:
+            chosen.append(j)
+    return np.asarray(chosen)
 
 
-def _fit(X: np.ndarray, y: np.ndarray):
+def _fit(X: np.ndarray, y: np.ndarray, *, tol: float = 1e-8, weights: np.ndarray | None = None):
     """Firth fit on the usable columns: (kept column indices, result or None)."""
     if X.shape[0] < 2:
         return np.arange(0), None
     keep = _usable_columns(X)
     try:
-        return keep, stats.firth_logit(X[:, keep], y.astype(float))
+        return keep, stats.firth_logit(X[:, keep], y.astype(float), tol=tol, weights=weights)
     except (AnalogError, np.linalg.LinAlgError):
         return keep, None  # not estimable here; left out of the combination
 
 
-def fit_design(X: np.ndarray, y: np.ndarray, *, ci: str | None = "profile",
-               alpha: float = 0.05) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+def fit_design(X: np.ndarray, y: np.ndarray, *, ci: str | None = "profile", alpha: float = 0.05,
+               tol: float = 1e-8, weights: np.ndarray | None = None,
+               ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """One Firth logistic fit; columns that cannot be estimated give NaN.
 
     Parameters
@@ -222,6 +223,10 @@ def fit_design(X: np.ndarray, y: np.ndarray, *, ci: str | None = "profile",
     ci : {'profile', 'wald', None}, default='profile'
         Interval to compute (None: estimates and variances only).
     alpha : float, default=0.05
+    tol : float, default=1e-8
+        Convergence tolerance of the Newton iterations (largest step, logit units).
+    weights : ndarray, shape (n,), optional
+        Case (frequency) weights; integer weights give the same fit as repeated rows.
 
     Returns
     -------
@@ -229,7 +234,7 @@ def fit_design(X: np.ndarray, y: np.ndarray, *, ci: str | None = "profile",
         Columns without variation, or linear combinations of earlier columns, are NaN.
     """
     out = np.full((4, X.shape[1]), np.nan)
-    keep, res = _fit(X, y)
+    keep, res = _fit(X, y, tol=tol, weights=weights)
     if res is not None:
         out[0, keep] = res.params
         out[1, keep] = np.asarray(res.bse) ** 2
@@ -292,7 +297,7 @@ def _combine_draws(est: np.ndarray, var: np.ndarray, down: float, up: float, *,
 
 def fit_intervals(X: np.ndarray, complete: np.ndarray, at_risk: np.ndarray, lost: np.ndarray,
                   interval_ids: np.ndarray, design: Design, *, ci_method: str = "profile",
-                  alpha: float = 0.05, min_class_size: int = 5, profile_draws: int = 4,
+                  alpha: float = 0.05, min_class_size: int = 5, profile_draws: int = 1,
                   progress=None) -> IntervalFits:
     """Firth selectivity per interval and age draw, combined over draws.
 
@@ -308,7 +313,7 @@ def fit_intervals(X: np.ndarray, complete: np.ndarray, at_risk: np.ndarray, lost
     ci_method : {'profile', 'wald'}, default='profile'
     alpha : float, default=0.05
     min_class_size : int, default=5
-    profile_draws : int, default=4
+    profile_draws : int, default=1
         Number of distinct age draws per interval whose profile intervals are computed.
     progress : callable, optional
         ``progress(label, done, total)``.
@@ -337,61 +342,80 @@ def fit_intervals(X: np.ndarray, complete: np.ndarray, at_risk: np.ndarray, lost
     """
     D, n_int, _ = at_risk.shape
     p = X.shape[1]
-    shape = (n_int, p)
-    est, var, low, high = (np.full(shape, np.nan) for _ in range(4))
-    n_risk, n_lost, fitted = (np.zeros(shape) for _ in range(3))
-    d_est, d_var = np.full((D, n_int, p), np.nan), np.full((D, n_int, p), np.nan)
-    n_missing = np.zeros(n_int)
-    flags = []
     Xc = np.nan_to_num(X)
     class_cols = np.array([t.kind in ("categorical", "binary") for t in design.terms])
-    for i in range(n_int):
-        cache: dict = {}
-        counts_risk = np.zeros((D, p))
-        counts_lost = np.zeros((D, p))
-        for d in range(D):
-            rows = at_risk[d, i] & complete
-            y = lost[d, i][rows]
-            Xi = Xc[rows]
-            member = np.where(class_cols[None, :], Xi == 1, True)
-            counts_risk[d] = member.sum(axis=0)
-            counts_lost[d] = (member & y[:, None]).sum(axis=0)
-            key = (rows.tobytes(), y.tobytes())
-            if key not in cache:
-                cache[key] = (_fit(Xi, y), [])
-            cache[key][1].append(d)
-            keep, res = cache[key][0]
-            if res is not None:
-                d_est[d, i, keep] = res.params
-                d_var[d, i, keep] = np.asarray(res.bse) ** 2
-        down = up = np.full(p, np.nan)
-        if ci_method == "profile":
-            dist = []
-            for (keep, res), _ in list(cache.values())[:max(1, profile_draws)]:
-                if res is None:
-                    continue
-                lim = np.full((p, 2), np.nan)
-                lim[keep] = np.asarray(res.conf_int(alpha=alpha, method="profile"))
-                b = np.full(p, np.nan)
-                b[keep] = res.params
-                dist.append(np.column_stack([b - lim[:, 0], lim[:, 1] - b]))
-            if dist:
-                with warnings.catch_warnings():
-                    warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN columns stay NaN
-                    mean_dist = np.nanmean(np.stack(dist), axis=0)
-                down, up = mean_dist[:, 0], mean_dist[:, 1]
-        n_missing[i] = float(np.mean((at_risk[:, i] & ~complete[None, :]).sum(axis=1)))
-        for j in range(p):
-            est[i, j], var[i, j], low[i, j], high[i, j] = _combine_draws(
-                d_est[:, i, j], d_var[:, i, j], down[j], up[j], alpha=alpha, ci=ci_method)
-        fitted[i] = np.isfinite(d_est[:, i]).sum(axis=0)
-        n_risk[i], n_lost[i] = counts_risk.mean(axis=0), counts_lost.mean(axis=0)
-        flags.append(_thin_flags(design, counts_risk, counts_lost, Xc, at_risk[:, i] & complete[None, :],
-                                 lost[:, i], min_class_size))
-        if progress is not None:
-            progress("selectivity", i + 1, n_int)
-    return IntervalFits(np.asarray(interval_ids), design.terms, est, var, low, high, n_risk, n_lost,
-                        fitted, n_missing, flags, d_est, d_var)
+    parts = []
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", AnalogWarning)
+        for i in range(n_int):
+            parts.append(_one_interval(Xc, complete, at_risk[:, i], lost[:, i], class_cols, design,
+                                       ci_method=ci_method, alpha=alpha, min_class_size=min_class_size,
+                                       profile_draws=profile_draws))
+            if progress is not None:
+                progress("selectivity", i + 1, n_int)
+    numeric = [str(w.message) for w in caught if issubclass(w.category, AnalogWarning)]
+    if numeric:
+        warnings.warn(f"{len(numeric)} numerical warnings from the per-interval Firth fits, for example: "
+                      f"{numeric[0]}", AnalogWarning, stacklevel=2)
+
+    def stack(key, axis=0):
+        return np.stack([part[key] for part in parts], axis=axis) if parts else np.empty((0, p))
+
+    return IntervalFits(np.asarray(interval_ids), design.terms, stack("estimate"), stack("variance"),
+                        stack("low"), stack("high"), stack("n_at_risk"), stack("n_lost"), stack("fitted"),
+                        np.array([part["n_missing"] for part in parts]), [part["flags"] for part in parts],
+                        stack("draw_estimates", axis=1), stack("draw_variances", axis=1))
+
+
+def _one_interval(Xc, complete, at_risk, lost, class_cols, design, *, ci_method, alpha, min_class_size,
+                  profile_draws) -> dict:
+    """Fits of one interval over age draws; ``at_risk`` and ``lost`` have shape (D, T)."""
+    D = at_risk.shape[0]
+    p = Xc.shape[1]
+    fits: dict = {}                      # distinct (rows, y) -> (kept columns, result)
+    d_est, d_var = np.full((D, p), np.nan), np.full((D, p), np.nan)
+    counts_risk, counts_lost = np.zeros((D, p)), np.zeros((D, p))
+    for d in range(D):
+        rows = at_risk[d] & complete
+        y = lost[d][rows]
+        Xi = Xc[rows]
+        member = np.where(class_cols[None, :], Xi == 1, True)
+        counts_risk[d] = member.sum(axis=0)
+        counts_lost[d] = (member & y[:, None]).sum(axis=0)
+        key = (rows.tobytes(), y.tobytes())
+        if key not in fits:
+            fits[key] = _fit(Xi, y)
+        keep, res = fits[key]
+        if res is not None:
+            d_est[d, keep] = res.params
+            d_var[d, keep] = np.asarray(res.bse) ** 2
+    down = up = np.full(p, np.nan)
+    if ci_method == "profile":
+        dist = []
+        for keep, res in list(fits.values())[:max(1, profile_draws)]:
+            if res is None:
+                continue
+            lim = np.full((p, 2), np.nan)
+            lim[keep] = np.asarray(res.conf_int(alpha=alpha, method="profile"))
+            b = np.full(p, np.nan)
+            b[keep] = res.params
+            dist.append(np.column_stack([b - lim[:, 0], lim[:, 1] - b]))
+        if dist:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN columns stay NaN
+                mean_dist = np.nanmean(np.stack(dist), axis=0)
+            down, up = mean_dist[:, 0], mean_dist[:, 1]
+    combined = np.array([_combine_draws(d_est[:, j], d_var[:, j], down[j], up[j], alpha=alpha, ci=ci_method)
+                         for j in range(p)])
+    return {
+        "estimate": combined[:, 0], "variance": combined[:, 1], "low": combined[:, 2], "high": combined[:, 3],
+        "n_at_risk": counts_risk.mean(axis=0), "n_lost": counts_lost.mean(axis=0),
+        "fitted": np.isfinite(d_est).sum(axis=0),
+        "n_missing": float(np.mean((at_risk & ~complete[None, :]).sum(axis=1))),
+        "flags": _thin_flags(design, counts_risk, counts_lost, Xc, at_risk & complete[None, :], lost,
+                             min_class_size),
+        "draw_estimates": d_est, "draw_variances": d_var,
+    }
 
 
 def _thin_flags(design: Design, counts_risk, counts_lost, Xc, rows, lost, min_class_size) -> dict[str, str]:
@@ -457,32 +481,38 @@ def pool_terms(estimate: np.ndarray, variance: np.ndarray, weights: np.ndarray, 
 
     Notes
     -----
-    Weights enter by dividing each interval's sampling variance by its weight (scaled so
-    the largest weight is 1) before pooling: an interval half as similar to the scenario
-    counts as if its estimate were half as precise, and its inverse-variance weight is
-    multiplied by its similarity weight. tau^2, Q and I^2 are computed on these
-    weighted variances, so they describe heterogeneity among the weighted intervals.
-    A term estimated in one interval only is reported as that interval's estimate.
+    Per term, the between-interval variance tau^2 (and Q, its p-value and I^2) come from
+    an ordinary random-effects fit of the per-interval estimates (``method``), so they
+    describe heterogeneity without the weights. The pooled estimate then multiplies each
+    interval's random-effects weight 1 / (v_i + tau^2) by its similarity weight w_i
+    (scaled so the largest is 1): estimate = sum(w_i y_i / (v_i + tau^2)) /
+    sum(w_i / (v_i + tau^2)), computed as a fixed-effect pooling of the variances
+    (v_i + tau^2) / w_i. With equal weights this is the usual random-effects estimate. With
+    HKSJ the same weights enter the Hartung-Knapp variance and a t law on k - 1 degrees
+    of freedom is used. A term estimated in one interval only is reported as that
+    interval's estimate with a normal interval.
     """
     n_int, p = estimate.shape
     w = np.asarray(weights, dtype=float)
     w = w / np.nanmax(w) if np.any(w > 0) else w
+    z = sps.norm.ppf(1 - alpha / 2)
     rows = []
     for j in range(p):
         ok = np.isfinite(estimate[:, j]) & np.isfinite(variance[:, j]) & (variance[:, j] > 0) & (w > 0)
         k = int(ok.sum())
         row = dict(estimate=np.nan, se=np.nan, ci_low=np.nan, ci_high=np.nan, tau2=np.nan, i2=np.nan,
                    q=np.nan, q_p=np.nan, k=k, method="")
+        y, v = estimate[ok, j], variance[ok, j]
         if k == 1:
-            e, v = float(estimate[ok, j][0]), float(variance[ok, j][0])
-            z = sps.norm.ppf(1 - alpha / 2)
-            row.update(estimate=e, se=np.sqrt(v), ci_low=e - z * np.sqrt(v), ci_high=e + z * np.sqrt(v),
+            e, se = float(y[0]), float(np.sqrt(v[0]))
+            row.update(estimate=e, se=se, ci_low=e - z * se, ci_high=e + z * se,
                        method="single interval (no pooling)")
         elif k >= 2:
             adj = hksj_for(hksj, k)
-            res = stats.pool_random_effects(estimate[ok, j], variance[ok, j] / w[ok], method=method, hksj=adj)
-            row.update(estimate=float(res.estimate), se=float(res.se), tau2=float(res.tau2), i2=float(res.i2),
-                       q=float(res.q), q_p=float(res.q_p),
+            het = stats.pool_random_effects(y, v, method=method)
+            res = stats.pool_random_effects(y, (v + het.tau2) / w[ok], method="FE", hksj=adj)
+            row.update(estimate=float(res.estimate), se=float(res.se), tau2=float(het.tau2), i2=float(het.i2),
+                       q=float(het.q), q_p=float(het.q_p),
                        method=f"random effects ({method}{', HKSJ' if adj else ''}), warming-similarity weights")
             if intervals:
                 lo, hi = np.asarray(res.conf_int(alpha), dtype=float).ravel()[:2]
@@ -523,26 +553,35 @@ def leave_one_out(fits: IntervalFits, X: np.ndarray, complete: np.ndarray, at_ri
     D = at_risk.shape[0]
     rows = []
     Xc = np.nan_to_num(X)
-    for i in range(n_int):
-        others = np.arange(n_int) != i
-        auc, nr, nl = np.nan, 0.0, 0.0
-        if others.any():
-            pooled = pool_terms(fits.estimate[others], fits.variance[others], weights[others], method=method,
-                                hksj=hksj, intervals=False)
-            beta = np.nan_to_num(pooled["estimate"].to_numpy(dtype=float))
-            beta[0] = 0.0
-            score = Xc @ beta
-            aucs = []
-            for d in range(D):
-                rows_d = at_risk[d, i] & complete
-                y = lost[d, i][rows_d]
-                nr += rows_d.sum() / D
-                nl += y.sum() / D
-                if 0 < y.sum() < y.size:
-                    aucs.append(float(stats.roc_auc(y.astype(int), score[rows_d])))
-            auc = float(np.mean(aucs)) if aucs else np.nan
-        rows.append(dict(interval_id=str(fits.interval_ids[i]), auc=auc, n_at_risk=nr, n_lost=nl))
+    with warnings.catch_warnings():
+        # tau^2 iterations on the reduced sets are diagnostics here; the full pooling reports its own
+        warnings.simplefilter("ignore", AnalogWarning)
+        for i in range(n_int):
+            rows.append(_held_out(i, fits, Xc, complete, at_risk, lost, weights, method, hksj))
     return pd.DataFrame(rows, columns=["interval_id", "auc", "n_at_risk", "n_lost"])
+
+
+def _held_out(i, fits, Xc, complete, at_risk, lost, weights, method, hksj) -> dict:
+    """AUC of interval ``i`` scored with slopes pooled from the other intervals."""
+    n_int = len(fits.interval_ids)
+    D = at_risk.shape[0]
+    rows = at_risk[:, i] & complete[None, :]
+    y_all = lost[:, i] & rows
+    n_risk, n_lost = rows.sum(axis=1).mean(), y_all.sum(axis=1).mean()
+    others = np.arange(n_int) != i
+    aucs = []
+    if others.any():
+        pooled = pool_terms(fits.estimate[others], fits.variance[others], weights[others], method=method,
+                            hksj=hksj, intervals=False)
+        beta = np.nan_to_num(pooled["estimate"].to_numpy(dtype=float))
+        beta[0] = 0.0  # rank-based AUC: the intercept plays no part
+        score = Xc @ beta
+        for d in range(D):
+            y = y_all[d][rows[d]]
+            if 0 < y.sum() < y.size:
+                aucs.append(float(stats.roc_auc(y.astype(int), score[rows[d]])))
+    return dict(interval_id=str(fits.interval_ids[i]), auc=float(np.mean(aucs)) if aucs else np.nan,
+                n_at_risk=float(n_risk), n_lost=float(n_lost))
 
 
 def warn_thin(fits: IntervalFits, *, stacklevel: int = 3) -> None:

@@ -170,10 +170,14 @@ def run_analog(study: Study, params: AnalogParams | None = None, *, rng: np.rand
     # --- fates -------------------------------------------------------------------------------
     fd = compute_fates(taxa, study.fossil_occurrences, intervals, age_draws=params.age_draws,
                        at_risk_rule=params.at_risk_rule, drop_singletons=params.drop_singletons,
-                       range_through=params.range_through, rng=rng)
+                       range_through=params.range_through, max_age_range=params.max_age_range, rng=rng)
     if progress is not None:
         progress("fates", 1, 1)
     fates_table = fd.shares()
+    if fd.coarse_occurrences:
+        notes.append(f"{fd.coarse_occurrences} fossil occurrences dated more coarsely than {params.max_age_range:g} "
+                     f"Myr were not used for first and last appearances ({len(fd.coarse_only_taxa)} taxa known "
+                     "only from such occurrences have no fates).")
     candidates = fd.at_risk.any(axis=(0, 1))
     cand_ids = fd.taxon_ids[candidates]
     by_id = taxa.set_index(taxa["taxon_id"].astype(str))
@@ -219,7 +223,8 @@ def run_analog(study: Study, params: AnalogParams | None = None, *, rng: np.rand
     })
     notes.append(f"Intervals are weighted by exp(-0.5 ((warming - {study.config.warming_c:g}) / "
                  f"{params.weight_scale_c:g})^2), scaled so the closest is 1; in pooling each interval's "
-                 "sampling variance is divided by its weight.")
+                 "random-effects weight 1 / (variance + tau^2) is multiplied by its similarity weight "
+                 "(tau^2, Q and I^2 are from the unweighted fit).")
 
     # --- selectivity per interval and pooled -------------------------------------------------
     terms = design.terms
@@ -346,7 +351,7 @@ def _risk(modern, design, fossil, X_fossil, complete, at_risk, lost, weights, us
         note[e].append("relatives never at risk in a weighted interval; trait model only")
 
     if params.n_bootstrap > 0:
-        draws, fallback = bootstrap_risk(
+        draws, fallback, n_warn = bootstrap_risk(
             X_fossil=X_fossil, complete=complete, at_risk=at_risk, lost=lost, used=used, weights_all=weights,
             X_modern=X_mod, fill=fill, beta_full=beta, index=matches.index, similarity=matches.similarity,
             pool_method=params.pooling_method, hksj=params.hksj, prior_strength=params.prior_strength,
@@ -358,6 +363,9 @@ def _risk(modern, design, fossil, X_fossil, complete, at_risk, lost, weights, us
                      "Firth estimates with Wald variances per resample).")
         if fallback:
             notes.append(f"{fallback} bootstrap term estimates were not estimable and used the full-data value.")
+        if n_warn:
+            notes.append(f"{n_warn} numerical warnings inside the bootstrap replicates (fits or tau^2 iterations "
+                         "that did not settle) were counted, not repeated.")
     else:
         draws = np.empty((n_mod, 0))
         low = high = np.full(n_mod, np.nan)
