@@ -56,7 +56,9 @@ class TrajectoryParams(Params):
         "doc": f"Models compared, any of {list(MODEL_NAMES)}."})
     threshold_occupancy: float = field(default=0.02, metadata={
         "min": 1e-6, "max": 0.5,
-        "doc": "Quasi-extinction threshold on the occupancy scale (converted to logit)."})
+        "doc": "Quasi-extinction threshold on the occupancy scale (converted to logit). A bin with no "
+               "occupied unit has empirical logit log(0.5 / (sampled + 0.5)), which lies below the "
+               "threshold only when sampled > 0.5 / threshold_occupancy - 0.5 (24 units at 0.02)."})
     horizon_bins: int = field(default=1, metadata={
         "min": 1, "max": 100,
         "doc": "Projection horizon in time bins (geological time: one bin is bin_width_ma Myr)."})
