@@ -97,12 +97,12 @@ def _console(stderr=False):
 
 
 def _cmd_check(args) -> int:
-    from .intake import load_study
+    from .intake import inventory, load_study
 
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", AnalogWarning)
         study = load_study(args.study)
-    print(study.summary())
+    print(inventory(study))
     _print_warnings(caught, study)
     return EXIT_OK
 

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import base64
 import functools
+import io
 import importlib
 import inspect
 import math
@@ -66,7 +67,35 @@ def fmt_num(x: Any, digits: int = 2) -> str:
         return MISSING
     if math.isinf(v):
         return "∞" if v > 0 else "\u2212∞"
-    return _minus(f"{v:.{digits}f}")
+    text = f"{v:.{digits}f}"
+    if float(text) == 0:
+        text = text.lstrip("-")  # no "-0.00"
+    return _minus(text)
+
+
+def fmt_p(x: Any) -> str:
+    """A probability or score on 0..1: two decimals, '<0.01' for small non-zero values."""
+    v = _float(x)
+    if 0 < v < 0.005:
+        return "<0.01"
+    if 0.995 < v < 1:
+        return ">0.99"
+    return fmt_num(v)
+
+
+def fmt_count(x: Any) -> str:
+    """Whole numbers as such; averages over draws with one decimal."""
+    v = _float(x)
+    if math.isnan(v) or abs(v - round(v)) < 1e-9:
+        return fmt_int(v)
+    return fmt_num(v, 1)
+
+
+def fmt_pvalue(x: Any) -> str:
+    v = _float(x)
+    if math.isnan(v):
+        return MISSING
+    return "<0.001" if v < 0.001 else f"{v:.3f}"
 
 
 def fmt_int(x: Any) -> str:
@@ -87,6 +116,10 @@ def fmt_ratio(x: Any) -> str:
 def fmt_pct(x: Any) -> str:
     v = _float(x)
     return MISSING if math.isnan(v) else f"{100 * v:.0f}%"
+
+
+def fmt_prange(low: Any, high: Any) -> str:
+    return fmt_range(low, high, fmt=fmt_p)
 
 
 def fmt_range(low: Any, high: Any, digits: int = 2, *, fmt=None) -> str:
@@ -177,6 +210,9 @@ class FigureRef:
     src: str
     alt: str
     caption: str
+    width: int = 0   # pixels of the embedded image (0 = unknown)
+    height: int = 0
+    size: str = "normal"  # layout class: 'normal', 'wide' or 'inset'
 
 
 @dataclass
@@ -310,21 +346,65 @@ class _Run:
         if not formats:
             return None
         self.used_figures.add(stem)
-        return _figure_ref(stem, formats, alt=alt, caption=caption)
+        dpi = _float(self.param("figures", "dpi", 300))
+        return _figure_ref(stem, formats, alt=alt, caption=caption, dpi=300.0 if math.isnan(dpi) else dpi)
 
     def figures_with_prefix(self, prefix: str) -> list[str]:
         return sorted(s for s in self.figures if s.startswith(prefix))
 
 
-def _figure_ref(stem: str, formats: Mapping[str, bytes], *, alt: str, caption: str) -> FigureRef | None:
-    if formats.get("png"):
-        mime, data = "image/png", formats["png"]
-    elif formats.get("svg"):
-        mime, data = "image/svg+xml", formats["svg"]
+EMBED_MAX_PX = 2400  # wider PNGs are downsampled for embedding (8 inches at 300 dpi is plenty on screen and paper)
+_SVG_SIZE = re.compile(r'<svg[^>]*?\swidth="([\d.]+)(pt|px)?"[^>]*?\sheight="([\d.]+)(pt|px)?"', re.DOTALL)
+
+
+def _png_size(data: bytes) -> tuple[int, int]:
+    """Width and height from a PNG's IHDR chunk (0, 0 if it is not a PNG)."""
+    if data[:8] != b"\x89PNG\r\n\x1a\n" or data[12:16] != b"IHDR":
+        return 0, 0
+    return int.from_bytes(data[16:20], "big"), int.from_bytes(data[20:24], "big")
+
+
+def _svg_size(data: bytes) -> tuple[float, float]:
+    """Width and height in CSS pixels from the root element (0, 0 when not stated)."""
+    hit = _SVG_SIZE.search(data[:4000].decode("utf-8", "replace"))
+    if not hit:
+        return 0.0, 0.0
+    scale = 4 / 3 if (hit.group(2) or "px") == "pt" else 1.0  # 1 pt = 4/3 CSS px
+    return float(hit.group(1)) * scale, float(hit.group(3)) * scale
+
+
+def _embeddable_png(data: bytes) -> tuple[bytes, int, int]:
+    w, h = _png_size(data)
+    if w <= EMBED_MAX_PX:
+        return data, w, h
+    from PIL import Image  # a dependency of matplotlib
+
+    with Image.open(io.BytesIO(data)) as im:
+        size = (EMBED_MAX_PX, max(1, round(h * EMBED_MAX_PX / w)))
+        small = im.resize(size, Image.Resampling.LANCZOS)
+    buf = io.BytesIO()
+    small.save(buf, format="PNG")
+    return buf.getvalue(), size[0], size[1]
+
+
+def _figure_ref(stem: str, formats: Mapping[str, bytes], *, alt: str, caption: str, dpi: float = 300.0,
+                size: str | None = None) -> FigureRef | None:
+    """Embed one figure: its SVG when that is smaller than the PNG (vector, sharp in print), else the PNG."""
+    png, svg = formats.get("png"), formats.get("svg")
+    inches = 0.0
+    if svg and (not png or len(svg) < len(png)):
+        w, h = _svg_size(svg)
+        mime, data, inches = "image/svg+xml", svg, w / 96
+    elif png:
+        w0, _ = _png_size(png)
+        data, w, h = _embeddable_png(png)
+        mime, inches = "image/png", w0 / dpi
     else:
         return None
+    if size is None:
+        size = "wide" if inches > 9 else "normal"  # wider than ~9 inches as drawn
     src = f"data:{mime};base64,{base64.b64encode(data).decode('ascii')}"
-    return FigureRef(stem, src, alt, caption)
+    return FigureRef(stem, src, alt, caption, int(round(w)), int(round(h)), size)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -364,10 +444,10 @@ def _risk_cells(r: _Run, row: Mapping[str, Any], ilabel: str) -> list[Cell]:
         Cell(fmt_int(row.get("combined_rank")), sort_key(row.get("combined_rank")), "num"),
         Cell(taxon.name, taxon.name.lower(), "taxon", taxon=taxon),
         Cell(tier.name, str(tier.order), "tier", tier=tier),
-        Cell(fmt_num(p), sort_key(p), "num"),
-        Cell(fmt_range(lo, hi), sort_key(lo), "interval", title=f"{ilabel}: {fmt_range(lo, hi)}", bar=bar),
-        Cell(fmt_num(row.get("analog_p")), sort_key(row.get("analog_p")), "num"),
-        Cell(fmt_num(row.get("trajectory_p")), sort_key(row.get("trajectory_p")), "num"),
+        Cell(fmt_p(p), sort_key(p), "num"),
+        Cell(fmt_prange(lo, hi), sort_key(lo), "interval", title=f"{ilabel}: {fmt_prange(lo, hi)}", bar=bar),
+        Cell(fmt_p(row.get("analog_p")), sort_key(row.get("analog_p")), "num"),
+        Cell(fmt_p(row.get("trajectory_p")), sort_key(row.get("trajectory_p")), "num"),
         Cell(evidence or MISSING, evidence),
     ]
 
@@ -467,20 +547,26 @@ def _agreement_words(tau: dict | None, rho: dict | None) -> dict:
             "tau": tau, "rho": rho}
 
 
+_TOPK = re.compile(r"top[_ -]?(\d+)", re.IGNORECASE)
+
+
 def _topk_rows(r: _Run) -> list[dict]:
+    """Top-k overlaps as 'k', share and interval (shares of the k most vulnerable on each line)."""
     comp = r.table("combined", "comparison.csv")
     if comp is None or "statistic" not in comp.columns:
         return []
     out = []
     for row in comp.to_dict("records"):
-        stat = str(row.get("statistic"))
-        if stat.lower().startswith("top"):
-            out.append({"statistic": _pretty(stat), "estimate": _float(row.get("estimate")),
-                        "note": _text(row.get("note"))})
-    return out
+        hit = _TOPK.match(str(row.get("statistic")))
+        if hit:
+            lo, hi = _float(row.get("low")), _float(row.get("high"))
+            span = "" if math.isnan(lo) or math.isnan(hi) else f"{fmt_pct(lo)} to {fmt_pct(hi)}"
+            out.append({"k": int(hit.group(1)), "share": fmt_pct(row.get("estimate")), "range": span})
+    return sorted(out, key=lambda t: t["k"])
 
 
-_STAT_LABELS = {"kendall_tau_b": "Kendall's tau-b", "spearman_rho": "Spearman's rho"}
+_STAT_LABELS = {"kendall_tau_b": "Kendall's tau-b", "spearman_rho": "Spearman's rho",
+                "n_taxa_both_lines": "Taxa with both lines"}
 
 
 def _comparison_table(r: _Run) -> Table:
@@ -489,9 +575,10 @@ def _comparison_table(r: _Run) -> Table:
     if comp is not None and "statistic" in comp.columns:
         for row in comp.to_dict("records"):
             stat = str(row.get("statistic"))
+            est = row.get("estimate")
             rows.append([
-                Cell(_STAT_LABELS.get(stat, _pretty(stat))),
-                Cell(fmt_num(row.get("estimate")), sort_key(row.get("estimate")), "num"),
+                Cell(_STAT_LABELS.get(stat, _pretty(stat).capitalize())),
+                Cell(fmt_count(est) if stat.startswith("n_") else fmt_num(est), sort_key(est), "num"),
                 Cell(fmt_range(row.get("low"), row.get("high")), sort_key(row.get("low")), "num"),
                 Cell(_text(row.get("note"))),
             ])
@@ -535,8 +622,8 @@ def _summary(r: _Run, rankings: pd.DataFrame | None, regions: list[RegionView]) 
         out["tier_counts"] = [(TIERS[n], int(tiers.get(n, 0))) for n in TIER_NAMES]
         top = _ordered_rankings(assessed).head(5)
         out["top"] = [{"taxon": r.taxon(row.get("taxon_id"), row.get("scientificName")),
-                       "p": fmt_num(row.get("combined_p")),
-                       "range": fmt_range(row.get("combined_low"), row.get("combined_high")),
+                       "p": fmt_p(row.get("combined_p")),
+                       "range": fmt_prange(row.get("combined_low"), row.get("combined_high")),
                        "tier": _tier(row.get("tier"))} for row in top.to_dict("records")]
     ok = [g for g in regions if not g.flagged]
     out["n_regions"] = len(regions)
@@ -565,20 +652,52 @@ def _nan_low(x: Any) -> float:
 
 
 # -- regions -----------------------------------------------------------------------------------------
-_INDEX_LABELS = [
-    ("n_taxa", "Living taxa recorded here", "taxa with modern records in this region", fmt_int),
-    ("n_records", "Modern occurrence records", "records assigned to this region", fmt_int),
-    ("expected_losses", "Expected losses (sum of scores)",
-     "sum of the combined scores of the taxa present; a comparative index between regions, not a count of "
-     "taxa that will disappear", lambda v: fmt_num(v, 1)),
-    ("mean_combined_p", "Mean combined score", "average relative vulnerability of the taxa present", fmt_num),
-    ("n_top_tier", "Taxa in the highest tier", "present here and in the highest tier overall", fmt_int),
-    ("diversity_loss", "Expected loss of taxonomic diversity",
-     "expected share of the regional rank tree's branch length lost (after Faith 2008)", fmt_num),
-]
-_LINE_INDICES = [("expected_losses", "Expected losses", lambda v: fmt_num(v, 1)),
-                 ("mean_p", "Mean score", fmt_num), ("mean_combined_p", "Mean score", fmt_num),
+_LINE_INDICES = [("n_taxa", "Taxa assessed", fmt_int),
+                 ("expected_losses", "Expected losses", lambda v: fmt_num(v, 1)),
+                 ("mean_p", "Mean score", fmt_p), ("mean_combined_p", "Mean score", fmt_p),
                  ("n_top_tier", "Taxa in the highest tier", fmt_int)]
+_LOSSES_WHY = ("sum of the combined scores of the taxa assessed here; a way to compare regions, not a count of "
+               "taxa that will disappear")
+
+
+def _region_indices(row: Mapping[str, Any]) -> list[tuple[str, str, str]]:
+    """(label, value, explanation) for each region index the summary table has."""
+    out = []
+    if "n_taxa_present" in row:
+        out.append(("Living taxa recorded here", fmt_int(row.get("n_taxa_present")),
+                    "taxa of the study with modern records in this region"))
+    if "n_taxa" in row:
+        out.append(("Taxa assessed", fmt_int(row.get("n_taxa")),
+                    "recorded here and scored on at least one line of evidence"))
+    if "n_records" in row:
+        out.append(("Modern occurrence records", fmt_int(row.get("n_records")), "records assigned to this region"))
+    if "expected_losses" in row:
+        value = fmt_num(row.get("expected_losses"), 1)
+        span = fmt_range(row.get("expected_losses_low"), row.get("expected_losses_high"), 1)
+        out.append(("Expected losses (sum of scores)", f"{value} ({span})" if span != MISSING else value,
+                    _LOSSES_WHY))
+    if "mean_combined_p" in row:
+        out.append(("Mean combined score", fmt_p(row.get("mean_combined_p")),
+                    "average relative vulnerability of the taxa assessed here"))
+    if "n_top_tier" in row:
+        out.append(("Taxa in the highest tier", fmt_int(row.get("n_top_tier")),
+                    "assessed here and in the highest tier of the whole study"))
+    if "diversity_loss" in row:
+        value = fmt_num(row.get("diversity_loss"), 1)
+        if not math.isnan(_float(row.get("diversity_total"))):
+            value = f"{value} of {fmt_count(row.get('diversity_total'))} branches"
+        span = fmt_range(row.get("diversity_loss_low"), row.get("diversity_loss_high"), 1)
+        out.append(("Expected loss of taxonomic diversity", f"{value} ({span})" if span != MISSING else value,
+                    "expected number of branches of the rank tree spanned by the taxa assessed here that would "
+                    "be lost, one unit per rank level (after Faith 2008)"))
+    if "mean_difference" in row and not math.isnan(_float(row.get("mean_difference"))):
+        n = fmt_int(row.get("n_taxa_both")) if "n_taxa_both" in row else "the"
+        out.append(("Analog minus trajectory score (mean)", fmt_num(row.get("mean_difference")),
+                    f"over {n} taxa scored on both lines; positive: the analog evidence rates them as more "
+                    "vulnerable than their own histories do"))
+    if "area_km2" in row and not math.isnan(_float(row.get("area_km2"))):
+        out.append(("Area", f"{fmt_int(row.get('area_km2'))} km²", "equal-area projection"))
+    return out
 
 
 def _region_inset(r: _Run, region_id: str, name: str) -> FigureRef | None:
@@ -612,7 +731,7 @@ def _region_inset(r: _Run, region_id: str, name: str) -> FigureRef | None:
         plt.close(fig)
     return _figure_ref(f"inset_{region_id}", {"png": png},
                        alt=f"Map of {name} within the study area, shaded by combined relative vulnerability.",
-                       caption=f"{name} (outlined) within the study area.")
+                       caption=f"{name} (outlined) within the study area.", size="inset")
 
 
 def _regions(r: _Run, rankings: pd.DataFrame | None, *, draw_insets: bool) -> list[RegionView]:
@@ -631,17 +750,9 @@ def _regions(r: _Run, rankings: pd.DataFrame | None, *, draw_insets: bool) -> li
         rid = str(row["region_id"])
         name = _text(row.get("name")) or rid
         slug = region_page_name(rid, taken)
-        flag = _text(row.get("data_flag"))
         flagged = _flagged(row.get("data_flag"))
-        indices = []
-        for col, label, why, f in _INDEX_LABELS:
-            if col not in row:
-                continue
-            value = f(row.get(col))
-            span = fmt_range(row.get("expected_losses_low"), row.get("expected_losses_high"), 1)
-            if col == "expected_losses" and span != MISSING:
-                value = f"{value} ({span})"
-            indices.append((label, value, why))
+        flag = "; ".join(t for t in (_text(row.get("data_flag")), _text(row.get("flag_reason"))) if t)
+        indices = _region_indices(row)
         by_line = []
         seen = set()
         for suffix, label, f in _LINE_INDICES:
@@ -708,10 +819,16 @@ def _trait_label(r: _Run, term: str) -> str:
         if term.startswith(name):
             rest = term[len(name):].strip("[]:=._ ")
             rest = re.sub(r"^T\.", "", rest).strip("[]")
-            label = traits[name].display
+            spec = traits[name]
+            label = spec.display
             label = label[:1].upper() + label[1:]
-            return f"{label}: {rest}" if rest else label
+            if rest:
+                return f"{label}: {rest}"
+            return label + {"numeric": " (per standard deviation)", "binary": " (yes vs no)"}.get(spec.kind, "")
     return _pretty(term)
+
+
+_INTERCEPTS = {"intercept", "(intercept)", "const", "constant"}
 
 
 def _pooling(r: _Run) -> dict:
@@ -720,10 +837,12 @@ def _pooling(r: _Run) -> dict:
         return {"table": None, "clear_terms": [], "unclear_terms": []}
     rows, clear, unclear = [], [], []
     for row in pooled.to_dict("records"):
+        raw = _text(row.get("term"))
+        if raw.strip().lower() in _INTERCEPTS:
+            continue  # the baseline odds, not a trait effect
         est, lo, hi = _float(row.get("estimate")), _float(row.get("ci_low")), _float(row.get("ci_high"))
-        orr, olo, ohi = math.exp(est) if not math.isnan(est) else math.nan, \
-            math.exp(lo) if not math.isnan(lo) else math.nan, math.exp(hi) if not math.isnan(hi) else math.nan
-        term = _trait_label(r, _text(row.get("term")))
+        orr, olo, ohi = (math.exp(v) if not math.isnan(v) else math.nan for v in (est, lo, hi))
+        term = _trait_label(r, raw)
         i2 = _float(row.get("i2"))
         i2 = i2 / 100 if i2 > 1 else i2  # accept I² as a share or a percentage
         rows.append([
@@ -774,10 +893,10 @@ def _loo(r: _Run) -> Table | None:
         label = names.get(iid) or iid
         rows.append([Cell(label, label.lower()),
                      Cell(fmt_num(row.get("auc")), sort_key(row.get("auc")), "num"),
-                     Cell(fmt_int(row.get("n_at_risk")), sort_key(row.get("n_at_risk")), "num"),
-                     Cell(fmt_int(row.get("n_lost")), sort_key(row.get("n_lost")), "num")])
+                     Cell(fmt_count(row.get("n_at_risk")), sort_key(row.get("n_at_risk")), "num"),
+                     Cell(fmt_count(row.get("n_lost")), sort_key(row.get("n_lost")), "num")])
     cols = [Column("Held-out interval"), Column("AUC", True, "0.5 = no better than chance, 1 = perfect"),
-            Column("Taxa at risk", True), Column("Taxa lost", True)]
+            Column("Taxa at risk", True, "Mean over age draws"), Column("Taxa lost", True, "Mean over age draws")]
     return Table("loo", "Leave-one-interval-out: how well the other intervals predict each one's losses", cols, rows)
 
 
@@ -800,31 +919,39 @@ def _interval_weights(r: _Run) -> Table | None:
 
 # -- trajectory -------------------------------------------------------------------------------------
 _MODEL_LABELS = {"rise_and_fall": "rise-and-fall", "rise_fall": "rise-and-fall", "hat": "rise-and-fall",
+                 "rise_fall_asymmetric": "asymmetric rise-and-fall",
+                 "rise_and_fall_asymmetric": "asymmetric rise-and-fall",
                  "random_walk": "random walk", "rw": "random walk", "drift": "random walk with drift",
                  "random_walk_drift": "random walk with drift", "stasis": "stasis",
-                 "model_average": "model average", "average": "model average"}
+                 "model_average": "model average", "average": "model average",
+                 "current_occupancy": "current occupancy (baseline)"}
 
 
 def _model_label(name: Any) -> str:
     key = _text(name).strip()
-    return _MODEL_LABELS.get(key.lower(), _pretty(key).replace(" and ", "-and-") if "rise" in key.lower()
-                             else _pretty(key))
+    if key.lower() in _MODEL_LABELS:
+        return _MODEL_LABELS[key.lower()]
+    label = _pretty(key)
+    return label.replace("rise and fall", "rise-and-fall").replace("rise fall", "rise-and-fall")
 
 
 def _hindcast_rows(r: _Run) -> list[dict]:
     hc = r.table("trajectory", "hindcast.csv")
     if hc is None or "model" not in hc.columns:
         return []
-    return [{"model": _model_label(row.get("model")), "raw": _text(row.get("model")), "auc": _float(row.get("auc")),
-             "low": _float(row.get("auc_low")), "high": _float(row.get("auc_high")), "brier": _float(row.get("brier")),
-             "n_lost": row.get("n_lost"), "n_survived": row.get("n_survived")} for row in hc.to_dict("records")]
+    return [{"model": _model_label(row.get("model")), "raw": _text(row.get("model")),
+             "reading": _text(row.get("reading")) or _model_label(row.get("model")),
+             "auc": _float(row.get("auc")), "low": _float(row.get("auc_low")), "high": _float(row.get("auc_high")),
+             "brier": _float(row.get("brier")), "n_lost": row.get("n_lost"), "n_survived": row.get("n_survived"),
+             "scored": _text(row.get("what_is_scored"))}
+            for row in hc.to_dict("records")]
 
 
 def _hindcast_table(r: _Run) -> Table | None:
     rows = _hindcast_rows(r)
     if not rows:
         return None
-    cells = [[Cell(h["model"], h["model"]), Cell(fmt_num(h["auc"]), sort_key(h["auc"]), "num"),
+    cells = [[Cell(h["reading"], h["reading"].lower()), Cell(fmt_num(h["auc"]), sort_key(h["auc"]), "num"),
               Cell(fmt_range(h["low"], h["high"]), sort_key(h["low"]), "num"),
               Cell(fmt_num(h["brier"], 3), sort_key(h["brier"]), "num"),
               Cell(fmt_int(h["n_lost"]), sort_key(h["n_lost"]), "num"),
@@ -833,8 +960,10 @@ def _hindcast_table(r: _Run) -> Table | None:
             Column("Interval", True, "Bootstrap interval of the AUC"),
             Column("Brier score", True, "Mean squared error of the predicted probabilities; lower is better"),
             Column("Lost", True, "Taxa later lost, in the hindcast"), Column("Survived", True)]
+    notes = sorted({h["scored"] for h in rows if h["scored"]})
+    note = ("What was scored: " + " / ".join(notes) + ".") if len(notes) == 1 else ""
     return Table("hindcast", "Hindcast: each reading scored on truncated histories of taxa whose fate is known",
-                 cols, cells)
+                 cols, cells, note=note)
 
 
 def _overlap(a: dict, b: dict) -> bool:
@@ -852,11 +981,12 @@ def _hindcast_words(r: _Run) -> dict:
     rows = [h for h in _hindcast_rows(r) if not math.isnan(h["auc"])]
     if not rows:
         return {"available": False}
-    hat = [h for h in rows if "rise" in h["raw"].lower() or h["model"] == "rise-and-fall"]
+    hat = [h for h in rows if "rise" in h["model"]]
     walk = [h for h in rows if "walk" in h["model"]]
+    base = [h for h in rows if h["raw"] == "current_occupancy"]
     best = max(rows, key=lambda h: h["auc"])
     out: dict[str, Any] = {"available": True, "best_text": f"{best['model']}, AUC {_auc_text(best)}",
-                           "winner": None,
+                           "winner": None, "baseline": f"AUC {_auc_text(base[0])}" if base else "",
                            "chance": not math.isnan(best["low"]) and best["low"] <= 0.5}
     if hat and walk:
         h = max(hat, key=lambda x: x["auc"])
@@ -867,35 +997,73 @@ def _hindcast_words(r: _Run) -> dict:
     return out
 
 
+_NULL_STATS = {"peak_position": ("Peak position", "0 = at the start, 0.5 = in the middle, 1 = at the end"),
+               "symmetry": ("Symmetry", "0 = symmetric; negative = bulk early, positive = bulk late"),
+               "peakedness": ("Peakedness", "peak height over mean height; 2 for a tent shape, higher = sharper")}
+_NULL_WORDS = {"peak_position": ("peak later than", "peak earlier than"),
+               "symmetry": ("carry more of their history late than", "carry more of their history early than"),
+               "peakedness": ("are more sharply peaked than", "are flatter than")}
+_NULL_GROUPS = {"completed": "Finished histories",
+                "ends_in_interval": "Histories ending in a catalogue warming interval"}
+ALPHA = 0.05  # conventional significance level for the plain-words reading (common practice)
+
+
 def _noise_null(r: _Run) -> dict:
+    """Data-set-level comparison of finished histories with pinned noise, as a table and in words."""
     nn = r.table("trajectory", "noise_null.csv")
+    empty = {"table": None, "n_taxa": 0, "groups": []}
     if nn is None:
-        return {"table": None, "n_taxa": 0}
-    level_col = next((c for c in ("level", "scope", "row_type", "kind") if c in nn.columns), None)
-    if level_col is not None:
-        mask = nn[level_col].astype(str).str.lower().isin({"dataset", "data set", "all", "overall", "pooled"})
+        return empty
+    level = nn["level"].astype(str).str.lower() if "level" in nn.columns else None
+    if level is not None:
+        ds, per_taxon = nn[level == "dataset"], nn[level != "dataset"]
     elif "taxon_id" in nn.columns:
-        mask = nn["taxon_id"].isna()
+        ds, per_taxon = nn[nn["taxon_id"].isna()], nn[nn["taxon_id"].notna()]
     else:
-        mask = pd.Series(True, index=nn.index)
-    ds, per_taxon = nn[mask], nn[~mask]
-    ds = ds.dropna(axis=1, how="all")
-    skip = {"taxon_id", level_col}
-    cols = [c for c in ds.columns if c not in skip]
-    rows = []
-    for row in ds.to_dict("records"):
-        cells = []
-        for c in cols:
-            v = row.get(c)
-            if isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, bool):
-                cells.append(Cell(fmt_num(v, 3), sort_key(v), "num"))
+        return empty
+    n_taxa = int(per_taxon["taxon_id"].nunique()) if "taxon_id" in per_taxon.columns else 0
+    needed = {"statistic", "observed", "null_mean", "p_value"}
+    if not len(ds) or not needed <= set(ds.columns):
+        return {**empty, "n_taxa": n_taxa}
+    rows, groups = [], []
+    group_col = ds["group"] if "group" in ds.columns else pd.Series("", index=ds.index)
+    for g in dict.fromkeys(group_col.astype(str)):
+        part = ds[group_col.astype(str) == g]
+        differs, same = [], []
+        n = _float(part["n_taxa"].iloc[0]) if "n_taxa" in part.columns else math.nan
+        for row in part.to_dict("records"):
+            stat = _text(row.get("statistic"))
+            label, meaning = _NULL_STATS.get(stat, (_pretty(stat).capitalize(), ""))
+            obs, mean, pv = _float(row.get("observed")), _float(row.get("null_mean")), _float(row.get("p_value"))
+            rows.append([
+                Cell(_NULL_GROUPS.get(g, _pretty(g).capitalize()) if g else MISSING),
+                Cell(label, title=meaning),
+                Cell(fmt_num(obs), sort_key(obs), "num"),
+                Cell(fmt_num(mean), sort_key(mean), "num"),
+                Cell(fmt_range(row.get("null_low"), row.get("null_high")), sort_key(row.get("null_low")), "num"),
+                Cell(fmt_pvalue(pv), sort_key(pv), "num"),
+                Cell(fmt_pvalue(row.get("test_p_value")), sort_key(row.get("test_p_value")), "num"),
+                Cell(fmt_count(row.get("n_taxa")), sort_key(row.get("n_taxa")), "num"),
+            ])
+            if math.isnan(pv) or math.isnan(obs) or math.isnan(mean):
+                continue
+            if pv < ALPHA:
+                more, less = _NULL_WORDS.get(stat, ("score higher than", "score lower than"))
+                differs.append(f"{more if obs > mean else less} pinned noise ({label.lower()} {fmt_num(obs)} "
+                               f"against {fmt_num(mean)}, p {'<' if pv < 0.001 else '='} "
+                               f"{fmt_pvalue(pv).lstrip('<')})")
             else:
-                cells.append(Cell(_pretty(_text(v))))
-        rows.append(cells)
-    table = Table("noise-null", "Completed trajectories against the noise null (whole data set)",
-                  [Column(_pretty(c).capitalize(), pd.api.types.is_numeric_dtype(ds[c])) for c in cols], rows,
-                  sortable=False) if rows else None
-    return {"table": table, "n_taxa": int(per_taxon["taxon_id"].nunique()) if "taxon_id" in per_taxon.columns else 0}
+                same.append(label.lower())
+        groups.append({"name": _NULL_GROUPS.get(g, _pretty(g).capitalize() if g else "All histories"),
+                       "key": g, "n": fmt_count(n), "differs": differs, "same": same})
+    cols = [Column("Histories"), Column("Shape statistic"), Column("Observed (mean)", True),
+            Column("Noise null (mean)", True), Column("Noise null interval", True),
+            Column("p", True, "Observed mean against the null distribution of the mean"),
+            Column("p (KS)", True, "Two-sample Kolmogorov–Smirnov test of the values against length-matched noise"),
+            Column("Taxa", True)]
+    table = Table("noise-null", "Shapes of finished histories against pinned noise (whole data set)", cols, rows,
+                  sortable=False)
+    return {"table": table, "n_taxa": n_taxa, "groups": groups}
 
 
 def _preferred_counts(r: _Run) -> list[tuple[str, int]]:
@@ -1108,45 +1276,63 @@ def _path_resolve(p: Any):
 
 # -- figures by section -------------------------------------------------------------------------------
 def _section_figures(r: _Run) -> dict[str, list[FigureRef]]:
+    """Figures by section, found by their stems; stems no rule claims go to 'other'."""
     traits = getattr(r.config, "traits", {}) or {}
     out: dict[str, list[FigureRef]] = {"ranking": [], "maps": [], "analog": [], "trajectory": [],
                                        "disagreements": [], "other": []}
-
-    def add(section, stem, alt, caption):
-        ref = r.figure(stem, alt=alt, caption=caption)
-        if ref is not None:
-            out[section].append(ref)
-
-    for stem in r.figures_with_prefix("top_taxa"):
-        add("ranking", stem, "Bar chart of the taxa with the highest combined scores, with interval bars.",
-            "Taxa with the highest combined scores; bars show the uncertainty interval.")
-    for stem in r.figures_with_prefix("risk_map"):
-        add("maps", stem, "Map of regions shaded by combined relative vulnerability.",
-            "Combined relative vulnerability by region. Hatched regions have too little data to judge.")
-    for stem in r.figures_with_prefix("side_by_side"):
-        add("maps", stem, "Two maps side by side: analog score and trajectory score by region, same colour scale.",
-            "Analog (left) and trajectory (right) evidence by region, on the same colour scale.")
-    for stem in r.figures_with_prefix("difference_map"):
-        add("maps", stem, "Map of the difference between the analog and trajectory scores by region.",
-            "Analog minus trajectory score by region; the colour scale is centred on zero (no difference).")
-    for stem in r.figures_with_prefix("forest_"):
-        trait = stem[len("forest_"):]
-        label = traits[trait].display if trait in traits else _pretty(trait)
-        add("analog", stem, f"Forest plot of odds ratios of loss by {label} class, per warming interval and pooled.",
-            f"Odds ratio of loss for each {label} class against the reference class, per warming interval and "
-            "pooled. Values above 1: lost more often than the reference class.")
-    for stem in r.figures_with_prefix("trajectory"):
-        add("trajectory", stem, "Small multiples of occupancy through time for selected lineages with fitted curves.",
-            "Occupancy histories of selected lineages with the fitted readings.")
-    for stem in r.figures_with_prefix("null"):
-        add("trajectory", stem, "Comparison of completed trajectories' shapes with the random-walk noise null.",
-            "Shapes of completed (extinct) trajectories against simulated noise-only excursions.")
-    for stem in r.figures_with_prefix("rank_scatter"):
-        add("disagreements", stem, "Scatter plot of analog rank against trajectory rank, largest disagreements labelled.",
-            "Analog rank against trajectory rank; points far from the diagonal disagree most.")
+    rules = [  # (test on the stem, section, alt text, caption); first match wins
+        (lambda s: s.startswith("top_taxa"), "ranking",
+         "Bar chart of the taxa with the highest combined scores, with interval bars.",
+         "Taxa with the highest combined scores; bars show the uncertainty interval."),
+        (lambda s: "difference" in s and "map" in s, "maps",
+         "Map of the difference between the analog and trajectory scores by region.",
+         "Analog minus trajectory score by region; the colour scale is centred on zero (no difference)."),
+        (lambda s: "map" in s and ("by_line" in s or "side_by_side" in s), "maps",
+         "Two maps side by side: analog score and trajectory score by region, on one colour scale.",
+         "Analog and trajectory evidence by region, on the same colour scale."),
+        (lambda s: "map" in s, "maps", "Map of regions shaded by combined relative vulnerability.",
+         "Combined relative vulnerability by region. Hatched regions have too little data to judge."),
+        (lambda s: "null" in s, "trajectory",
+         "Comparison of the shapes of finished histories with simulated random walks pinned at both ends.",
+         "Shapes of finished (extinct) histories against simulated noise-only histories."),
+        (lambda s: s.startswith("trajector") and "extinct" in s, "trajectory",
+         "Small multiples of occupancy through time for extinct lineages, with fitted curves.",
+         "Occupancy histories of extinct lineages (finished histories) with the fitted readings."),
+        (lambda s: s.startswith("trajector") and ("extant" in s or "living" in s), "trajectory",
+         "Small multiples of occupancy through time for living lineages, with fitted curves.",
+         "Occupancy histories of living lineages with the fitted readings."),
+        (lambda s: s.startswith("trajector"), "trajectory",
+         "Small multiples of occupancy through time for selected lineages, with fitted curves.",
+         "Occupancy histories of selected lineages with the fitted readings."),
+        (lambda s: s.startswith("rank_scatter") or "scatter" in s, "disagreements",
+         "Scatter plot of analog rank against trajectory rank, largest disagreements labelled.",
+         "Analog rank against trajectory rank; points far from the diagonal disagree most."),
+    ]
+    for stem in sorted(r.figures):
+        if stem.startswith("forest_"):
+            trait = stem[len("forest_"):]
+            label = traits[trait].display if trait in traits else _pretty(trait)
+            ref = r.figure(stem, alt=f"Forest plot of odds ratios of loss by {label}, per warming interval and "
+                                      "pooled.",
+                           caption=f"{label[:1].upper() + label[1:]}: odds ratio of loss per warming interval and "
+                                   "pooled. Above 1: lost more often than the reference.")
+            if ref is not None:
+                out["analog"].append(ref)
+            continue
+        for test, section, alt, caption in rules:
+            if test(stem):
+                ref = r.figure(stem, alt=alt, caption=caption)
+                if ref is not None:
+                    out[section].append(ref)
+                break
     for stem in sorted(r.figures):
         if stem not in r.used_figures:
-            add("other", stem, f"Figure {_pretty(stem)}.", _pretty(stem).capitalize() + ".")
+            ref = r.figure(stem, alt=f"Figure {_pretty(stem)}.", caption=_pretty(stem).capitalize() + ".")
+            if ref is not None:
+                out["other"].append(ref)
+    out["maps"].sort(key=lambda f: (2 if "difference" in f.stem else 1 if ("by_line" in f.stem or "side" in f.stem)
+                                    else 0, f.stem))
+    out["trajectory"].sort(key=lambda f: ("null" in f.stem, "extinct" in f.stem, f.stem))
     return out
 
 

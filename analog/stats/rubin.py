@@ -177,7 +177,7 @@ def rubin_combine(estimates, variances, *, df_complete=None):
         else:
             df_obs = (df_complete + 1.0) / (df_complete + 3.0) * df_complete * (1.0 - lam)
             df = np.where(np.isinf(df_old), df_obs, df_old * df_obs / (df_old + df_obs))
-        fmi = (riv + 2.0 / (df + 3.0)) / (1.0 + riv)
+        fmi = np.where(np.isinf(riv), 1.0, (riv + 2.0 / (df + 3.0)) / (1.0 + riv))  # W = 0: limit 1
     nan = m == 0
     df = np.where(nan, np.nan, df)
     fmi = np.where(nan, np.nan, fmi)
