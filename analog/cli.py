@@ -102,8 +102,7 @@ def _cmd_check(args) -> int:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", AnalogWarning)
         study = load_study(args.study)
-    print(inventory(study))
-    _print_warnings(caught, study)
+    print(inventory(study))  # includes the warnings
     return EXIT_OK
 
 
