@@ -22,6 +22,7 @@ import numpy as np
 import pandas as pd
 from scipy.special import ndtr
 
+from ..errors import AnalogError
 from .params import MODEL_NAMES
 
 __all__ = ["SeriesBatch", "ModelFit", "FitSet", "fit_models", "fit_model", "simulate", "curve_value",
@@ -379,7 +380,7 @@ def fit_model(name: str, batch: SeriesBatch, *, min_series_bins: int = 3) -> Mod
     from ..stats import aicc
 
     if name not in _FITTERS:
-        raise ValueError(f"`name` was {name!r} but is expected to be in {list(_FITTERS)}")
+        raise AnalogError(f"`name` was {name!r} but is expected to be in {list(_FITTERS)}")
     k = MODEL_K[name]
     n_eff = (batch.n - 1).astype(float)
     if len(batch) == 0:

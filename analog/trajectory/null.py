@@ -19,6 +19,8 @@ import numpy as np
 import pandas as pd
 from scipy import stats as sps
 
+from ..errors import AnalogError
+
 __all__ = ["noise_null", "NULL_COLUMNS", "STATISTICS"]
 
 STATISTICS = ("peak_position", "symmetry", "peakedness")
@@ -102,7 +104,7 @@ def noise_null(series: pd.DataFrame, ends_in: pd.Series, *, scale: str = "logit"
     from ..stats import brownian_excursions, hat_shape
 
     if scale not in ("logit", "occupancy"):
-        raise ValueError(f"`scale` was {scale!r} but is expected to be in {{'logit', 'occupancy'}}")
+        raise AnalogError(f"`scale` was {scale!r} but is expected to be in {{'logit', 'occupancy'}}")
     baseline = "zero" if scale == "occupancy" else "min"
     keys, h, n = _rows(series, scale)
     keep = n >= min_bins

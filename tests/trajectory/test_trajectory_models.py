@@ -168,3 +168,10 @@ def test_from_table_packs_series_and_skips_empty_bins():
     assert list(b.key) == ["a", "b"] and list(b.n) == [2, 2]
     assert b.t[0, 1] == 20.0 and b.y[0, 1] == -2.0     # the gap widens the time step
     assert b.age0[0] == 25.0
+
+
+def test_unknown_model_is_rejected():
+    from analog.errors import AnalogError
+
+    with pytest.raises(AnalogError, match="`name` was 'logistic'"):
+        fit_model("logistic", _batch(Y))
