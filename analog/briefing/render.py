@@ -812,7 +812,7 @@ def _region_overview(r: _Run, regions: list[RegionView]) -> Table:
 
 
 # -- analog --------------------------------------------------------------------------------------
-def _trait_label(r: _Run, term: str) -> str:
+def _trait_label(r: _Run, term: str, *, short: bool = False) -> str:
     """'depth_zone[T.slope]'-like terms in the trait's display name, where the trait is known."""
     traits = getattr(r.config, "traits", {}) or {}
     for name in sorted(traits, key=len, reverse=True):
@@ -824,11 +824,34 @@ def _trait_label(r: _Run, term: str) -> str:
             label = label[:1].upper() + label[1:]
             if rest:
                 return f"{label}: {rest}"
-            return label + {"numeric": " (per standard deviation)", "binary": " (yes vs no)"}.get(spec.kind, "")
+            if short:
+                return label
+            return label + {"numeric": " (per standard deviation)", "binary": " (yes vs no)",
+                            "ordinal": " (per step up its ordered classes)"}.get(spec.kind, "")
     return _pretty(term)
 
 
 _INTERCEPTS = {"intercept", "(intercept)", "const", "constant"}
+
+
+def _trait_of(r: _Run, term: str):
+    traits = getattr(r.config, "traits", {}) or {}
+    for name in sorted(traits, key=len, reverse=True):
+        if term.startswith(name):
+            return traits[name]
+    return None
+
+
+def _trait_kind(r: _Run, term: str) -> str:
+    spec = _trait_of(r, term)
+    return spec.kind if spec is not None else ""
+
+
+def _reference_class(r: _Run, term: str) -> str:
+    spec = _trait_of(r, term)
+    if spec is None or spec.kind != "categorical":
+        return ""
+    return _text(spec.reference)
 
 
 def _pooling(r: _Run) -> dict:
@@ -858,20 +881,32 @@ def _pooling(r: _Run) -> dict:
             Cell(_text(row.get("method"))),
         ])
         if not (math.isnan(lo) or math.isnan(hi)):
-            item = {"term": term, "or": fmt_ratio(orr), "range": fmt_range(olo, ohi, fmt=fmt_ratio)}
+            ref = _reference_class(r, raw)
+            item = {"term": term, "or": fmt_ratio(orr), "range": fmt_range(olo, ohi, fmt=fmt_ratio),
+                    "against": f"than the reference class ({ref})" if ref else "than the reference class"}
+            if not ref and _trait_kind(r, raw) in {"numeric", "ordinal"}:
+                item["against"] = "as the trait increases"
             if lo > 0:
                 clear.append({**item, "direction": "more often lost"})
             elif hi < 0:
                 clear.append({**item, "direction": "less often lost"})
             else:
                 unclear.append(item)
+    methods = sorted({_text(row.get("method")) for row in pooled.to_dict("records")} - {""})
+    if len(methods) <= 1:  # one method for every row: say it once, under the table
+        for cells in rows:
+            cells.pop()
     cols = [Column("Trait class"), Column("Pooled odds ratio", True, "Odds of loss against the reference class"),
             Column("Interval", True, "Confidence interval of the odds ratio; sorts by its lower end"),
             Column("Log odds", True), Column("tau²", True, "Between-interval variance of the log odds ratio"),
             Column("I²", True, "Share of the spread due to real differences between intervals"),
             Column("Q", True, "Cochran's heterogeneity statistic"), Column("p (Q)", True),
             Column("Intervals", True, "Number of warming intervals pooled"), Column("Method")]
-    table = Table("pooled", "Pooled odds ratios of loss across warming intervals", cols, rows)
+    note = ""
+    if len(methods) <= 1:
+        cols.pop()
+        note = f"Method: {methods[0]}." if methods else ""
+    table = Table("pooled", "Pooled odds ratios of loss across warming intervals", cols, rows, note=note)
     return {"table": table, "clear_terms": clear, "unclear_terms": unclear}
 
 
@@ -1066,6 +1101,16 @@ def _noise_null(r: _Run) -> dict:
     return {"table": table, "n_taxa": n_taxa, "groups": groups}
 
 
+def _unscored(r: _Run, stage: str, table: str, column: str) -> list[tuple[str, int]]:
+    """Why taxa have no score on a line: (note, count) from the line's risk table."""
+    t = r.table(stage, table)
+    if t is None or column not in t.columns or "note" not in t.columns:
+        return []
+    missing = t[pd.to_numeric(t[column], errors="coerce").isna()]
+    counts = missing["note"].fillna("no reason recorded").astype(str).value_counts()
+    return sorted(((str(k), int(v)) for k, v in counts.items()), key=lambda kv: (-kv[1], kv[0]))
+
+
 def _preferred_counts(r: _Run) -> list[tuple[str, int]]:
     tr = r.table("trajectory", "trajectory_risk.csv")
     if tr is None or "preferred_model" not in tr.columns:
@@ -1075,6 +1120,28 @@ def _preferred_counts(r: _Run) -> list[tuple[str, int]]:
 
 
 # -- disagreements ----------------------------------------------------------------------------------
+_DRIVER = re.compile(r"^(?P<term>.*?)\s*\((?P<value>[-+\u2212]?[\d.]+)\)$")
+
+
+def _drivers(r: _Run, text: Any) -> str:
+    """'intercept (-2.30); depth_zone[basin] (-0.81)' -> 'Depth zone: basin −0.81'.
+
+    The intercept is dropped: it is the same for every taxon, so it explains no difference.
+    """
+    out = []
+    for part in (p.strip() for p in _text(text).split(";")):
+        hit = _DRIVER.match(part)
+        if not hit:
+            if part:
+                out.append(part)
+            continue
+        term = hit.group("term").strip()
+        if term.lower() in _INTERCEPTS:
+            continue
+        out.append(f"{_trait_label(r, term, short=True)} {_minus(hit.group('value'))}")
+    return "; ".join(out) or MISSING
+
+
 def _disagreements(r: _Run) -> Table | None:
     d = r.table("combined", "disagreements.csv")
     if d is None:
@@ -1090,13 +1157,15 @@ def _disagreements(r: _Run) -> Table | None:
             Cell(_pretty(_text(row.get("higher_on"))) or MISSING),
             Cell(fmt_num(row.get("analog_p")), sort_key(row.get("analog_p")), "num"),
             Cell(fmt_num(row.get("trajectory_p")), sort_key(row.get("trajectory_p")), "num"),
-            Cell(_text(row.get("analog_drivers")) or MISSING),
-            Cell(_model_label(row.get("trajectory_driver")) if _text(row.get("trajectory_driver")) else MISSING),
+            Cell(_drivers(r, row.get("analog_drivers"))),
+            Cell(_model_label(row.get("preferred_model")) if _text(row.get("preferred_model"))
+                 else _text(row.get("trajectory_driver")) or MISSING),
         ])
     cols = [Column("Taxon"), Column("Analog rank", True), Column("Trajectory rank", True),
             Column("Rank difference", True), Column("Ranked higher by"), Column("Analog score", True),
-            Column("Trajectory score", True), Column("What drives the analog score"),
-            Column("Trajectory reading")]
+            Column("Trajectory score", True),
+            Column("What pushes the analog score", False, "Trait terms on the log-odds scale; + raises, − lowers"),
+            Column("Preferred trajectory reading")]
     return Table("disagreements", "Taxa whose two rankings differ most", cols, rows, sorted_by=None)
 
 
@@ -1433,6 +1502,8 @@ def build_briefing(run: Any, *, figures: Mapping[str, Mapping[str, bytes]] | Non
         "hindcast_table": _hindcast_table(r),
         "noise_null": _noise_null(r),
         "preferred": _preferred_counts(r),
+        "trajectory_unscored": _unscored(r, "trajectory", "trajectory_risk.csv", "trajectory_p"),
+        "analog_unscored": _unscored(r, "analog", "analog_risk.csv", "analog_p"),
         "comparison": _comparison_table(r),
         "disagreements": _disagreements(r),
         "sensitivity": _sensitivity(r),

@@ -179,7 +179,7 @@ def test_summary_states_agreement_and_hindcast_in_words(pages):
             "AUC 0.71 (interval 0.62 to 0.80) against 0.55 (interval 0.45 to 0.65)") in text
     assert "does not clearly tell the two readings apart" in text  # 0.62-0.80 overlaps 0.45-0.65
     assert "weights the analog line 60% and the trajectory line 40%" in text
-    assert "Depth zone: basin: more often lost than the reference class (pooled odds ratio 3.32" in text
+    assert "Depth zone: basin: more often lost than the reference class (shelf) (pooled odds ratio 3.32" in text
     assert "1 of 3 regions have too little data to judge" in text
 
 
