@@ -42,17 +42,19 @@ def forest_plots(result, traits: dict[str, TraitSpec]) -> dict[str, Figure]:
 def _label_for(spec: TraitSpec, rows: pd.DataFrame) -> tuple[str, str]:
     """(title, x-axis reading) for one trait."""
     what = spec.display
+    if len(what) > 1 and what[1].islower():  # 'Body size' -> 'body size', keep 'pH' or '°C' as written
+        what = what[0].lower() + what[1:]
     if spec.kind == "categorical":
         ref = rows["unit"].iloc[0].removeprefix("vs ").strip() if len(rows) else ""
-        return (f"Odds of loss in past warming intervals by {what.lower()} (compared with {ref})",
+        return (f"Odds of loss in past warming intervals by {what} (compared with {ref})",
                 f"Odds ratio of loss vs {ref} (log scale)")
     if spec.kind == "ordinal":
-        return (f"Odds of loss in past warming intervals per step up in {what.lower()}",
+        return (f"Odds of loss in past warming intervals per step up in {what}",
                 "Odds ratio of loss per step (log scale)")
     if spec.kind == "numeric":
-        return (f"Odds of loss in past warming intervals per standard deviation of {what.lower()}",
+        return (f"Odds of loss in past warming intervals per standard deviation of {what}",
                 f"Odds ratio of loss {rows['unit'].iloc[0] if len(rows) else 'per SD'} (log scale)")
-    return (f"Odds of loss in past warming intervals: {what.lower()} (yes vs no)",
+    return (f"Odds of loss in past warming intervals: {what} (yes vs no)",
             "Odds ratio of loss, yes vs no (log scale)")
 
 
@@ -99,9 +101,11 @@ def forest_plot(result, trait: str, spec: TraitSpec) -> Figure:
     n = len(items)
     title, xlabel = _label_for(spec, rows)
 
+    top_in, bottom_in, row_in = 0.7, 1.05, 0.24   # fixed margins in inches, so any row count reads alike
+    height = top_in + bottom_in + row_in * n
     with figure_style():
-        fig = Figure(figsize=(7.5, 1.6 + 0.24 * n))
-        ax = fig.add_axes((0.30, 0.13 + 0.25 / (1 + 0.24 * n), 0.45, 1 - 0.22 - 0.6 / (1.6 + 0.24 * n)))
+        fig = Figure(figsize=(7.5, height))
+        ax = fig.add_axes((0.30, bottom_in / height, 0.45, row_in * n / height))
         ys = np.arange(n)[::-1].astype(float)
         finite = rows[["ci_low", "ci_high"]].to_numpy(dtype=float).ravel()
         finite = np.exp(finite[np.isfinite(finite)])
@@ -164,18 +168,20 @@ def forest_plot(result, trait: str, spec: TraitSpec) -> Figure:
                 fontsize=7.5, fontweight="bold")
         ax.text(1.26, n - 0.2, "weight", transform=ax.get_yaxis_transform(), ha="left", va="bottom",
                 fontsize=7.5, fontweight="bold")
-        ax.text(0.0, 1.0 + 0.35 / (1 + 0.24 * n), "← lost less often", transform=ax.transAxes, ha="left",
+        ax.text(0.0, n - 0.2, "← lost less often", transform=ax.get_yaxis_transform(), ha="left",
                 va="bottom", fontsize=7, color="#555555")
-        ax.text(1.0, 1.0 + 0.35 / (1 + 0.24 * n), "lost more often →", transform=ax.transAxes, ha="right",
+        ax.text(1.0, n - 0.2, "lost more often →", transform=ax.get_yaxis_transform(), ha="right",
                 va="bottom", fontsize=7, color="#555555")
-        fig.suptitle(title, x=0.02, ha="left", fontsize=10, fontweight="bold")
+        fig.text(0.02, 1 - 0.2 / height, title, ha="left", va="top", fontsize=10, fontweight="bold")
         handles = [Line2D([], [], color=ANALOG_COLOUR, marker="s", lw=1.2, label="one interval (size = weight)"),
                    Line2D([], [], color=ANALOG_COLOUR, marker="s", mfc="white", lw=1.2,
                           label="too few taxa to estimate well"),
                    Line2D([], [], color=COMBINED_COLOUR, marker="D", lw=0, label="pooled")]
-        fig.legend(handles=handles, loc="lower right", ncol=3, fontsize=7, bbox_to_anchor=(0.99, 0.035))
+        fig.legend(handles=handles, loc="lower center", ncol=3, fontsize=7,
+                   bbox_to_anchor=(0.5, 0.36 / height))
         add_caption(fig, f"Bars: {level:.0%} confidence intervals (Firth logistic regression over age draws); "
-                         "weight = similarity of the interval's warming to the scenario.")
+                         "counts are averages over age draws; weight = similarity of the interval's warming "
+                         "to the scenario.")
     return fig
 
 
