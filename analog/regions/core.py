@@ -6,6 +6,7 @@ from typing import Callable
 
 import numpy as np
 import pandas as pd
+import scipy.sparse as sp
 
 from ..errors import AnalogWarning
 from ..figures.style import TIER_NAMES
@@ -111,12 +112,11 @@ def _indices(regions, presence, records, combined_result, study, params, notes) 
     rk = combined_result.rankings.set_index("taxon_id")
     taxa = rk.index.to_numpy()
     present = presence[presence["present"]]
-    # taxa x regions presence matrix over every ranked taxon
-    P = np.zeros((len(taxa), len(rid)), dtype=bool)
+    # sparse taxa x regions presence matrix over every ranked taxon (large studies stay small)
     ti = pd.Index(taxa).get_indexer(present["taxon_id"])
     ri = pd.Index(rid).get_indexer(present["region_id"])
     known = ti >= 0
-    P[ti[known], ri[known]] = True
+    P = sp.csr_matrix((np.ones(known.sum()), (ti[known], ri[known])), shape=(len(taxa), len(rid)))
     extra = present.loc[~known].groupby("region_id").size()  # present but not in the rankings at all
 
     out = pd.DataFrame({"region_id": rid, "name": regions["name"].astype(str).to_numpy()})
@@ -126,31 +126,34 @@ def _indices(regions, presence, records, combined_result, study, params, notes) 
     for line, (pcol, tcol, dattr) in _LINES.items():
         p = rk[pcol].to_numpy(dtype=float)
         has = ~np.isnan(p)
-        M = P & has[:, None]
-        n = M.sum(axis=0)
+        M = sp.csr_matrix(P.multiply(has[:, None].astype(float)))
+        MT = M.T.tocsr()
+        n = np.asarray(M.sum(axis=0)).ravel().astype(int)
         draws = getattr(combined_result, dattr).reindex(taxa).to_numpy(dtype=float)
-        summed = M.T.astype(float) @ np.nan_to_num(draws)
-        expected = M.T.astype(float) @ np.nan_to_num(p)
-        top = rk[tcol].isin(top_tiers).to_numpy()
+        summed = np.asarray(MT @ np.nan_to_num(draws))
+        expected = MT @ np.nan_to_num(p)
+        top = rk[tcol].isin(top_tiers).to_numpy().astype(float)
         prefix = "" if line == "combined" else f"{line}_"
         cols = {"n_taxa": n, "expected_losses": expected,
                 "expected_losses_low": _q(summed, alpha), "expected_losses_high": _q(summed, 1 - alpha),
                 "mean_p": np.divide(expected, n, out=np.full(len(n), np.nan), where=n > 0),
-                "n_top_tier": (M & top[:, None]).sum(axis=0)}
+                "n_top_tier": (MT @ top).astype(int)}
         for c in LINE_COLUMNS:
             name = "mean_combined_p" if (line == "combined" and c == "mean_p") else prefix + c
             out[name] = cols[c]
         if line == "combined":
-            out["n_taxa_present"] = P.sum(axis=0) + extra.reindex(rid, fill_value=0).to_numpy()
+            out["n_taxa_present"] = np.asarray(P.sum(axis=0)).ravel().astype(int) + \
+                extra.reindex(rid, fill_value=0).to_numpy()
             out["n_taxa_unassessed"] = out["n_taxa_present"] - n
             combined_mask, combined_p, combined_draws = M, p, draws
     a = rk["analog_p"].to_numpy(dtype=float)
     t = rk["trajectory_p"].to_numpy(dtype=float)
-    both = P & (~np.isnan(a) & ~np.isnan(t))[:, None]
-    out["n_taxa_both"] = both.sum(axis=0)
-    diff_sum = both.T.astype(float) @ np.nan_to_num(a - t)
-    out["mean_difference"] = np.divide(diff_sum, out["n_taxa_both"].to_numpy(),
-                                       out=np.full(len(rid), np.nan), where=out["n_taxa_both"].to_numpy() > 0)
+    both = (~np.isnan(a) & ~np.isnan(t)).astype(float)
+    BT = sp.csr_matrix(P.multiply(both[:, None])).T.tocsr()
+    n_both = np.asarray(BT.sum(axis=1)).ravel().astype(int)
+    out["n_taxa_both"] = n_both
+    diff_sum = BT @ np.nan_to_num(a - t)
+    out["mean_difference"] = np.divide(diff_sum, n_both, out=np.full(len(rid), np.nan), where=n_both > 0)
     out = out.join(_diversity(study, taxa, combined_mask, combined_p, combined_draws, alpha, rid, notes))
 
     few_taxa = out["n_taxa"] < params.min_taxa
@@ -181,7 +184,7 @@ def _diversity(study, taxa, mask, p, draws, alpha, rid, notes) -> pd.DataFrame:
     tree = build_rank_tree(study.taxa)
     ids = taxa[assessed]
     inc, _ = branch_incidence(tree, ids)
-    m = mask[assessed]
+    m = sp.csc_matrix(mask)[np.flatnonzero(assessed)]
     out["diversity_loss"] = expected_diversity_loss(inc, m, p[assessed])
     out["diversity_total"] = expected_diversity_loss(inc, m, np.ones(assessed.sum()))
     if draws.shape[1]:

@@ -56,7 +56,7 @@ def expected_diversity_loss(incidence: sp.csr_matrix, present: np.ndarray, p: np
     ----------
     incidence : sparse matrix, shape (n_branches, n_taxa)
         From :func:`branch_incidence`.
-    present : bool array, shape (n_taxa, n_regions)
+    present : bool array or sparse matrix, shape (n_taxa, n_regions)
         Taxa present (and assessed) in each region.
     p : array, shape (n_taxa,) or (n_taxa, n_draws)
         Probability each taxon is lost.
@@ -87,7 +87,7 @@ def expected_diversity_loss(incidence: sp.csr_matrix, present: np.ndarray, p: np
     squeeze = p.ndim == 1
     if squeeze:
         p = p[:, None]
-    present = np.asarray(present, dtype=bool)
+    present = sp.csc_matrix(present, dtype=float)
     n_regions = present.shape[1]
     lengths = np.ones(incidence.shape[0]) if lengths is None else np.asarray(lengths, dtype=float)
     with np.errstate(divide="ignore"):
@@ -95,7 +95,8 @@ def expected_diversity_loss(incidence: sp.csr_matrix, present: np.ndarray, p: np
     out = np.zeros((n_regions, p.shape[1]))
     inc = incidence.tocsc()
     for r in range(n_regions):  # one sparse product per region, not per taxon
-        idx = np.flatnonzero(present[:, r])
+        col = present[:, [r]]
+        idx = col.indices[col.data != 0]
         if not len(idx):
             continue
         sub = inc[:, idx]

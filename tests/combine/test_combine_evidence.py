@@ -275,3 +275,16 @@ def test_reruns_are_identical(inputs):
 def test_bad_options_are_reported(section, match):
     with pytest.raises(InputError, match=match):
         PARAMS.from_section(section, name="combine")
+
+
+def test_too_few_shared_taxa_leave_statistics_blank_with_a_note(inputs):
+    study, analog, traj = inputs
+    keep = traj.risk["taxon_id"].isin(["t010", "t011"])
+    t2 = type(traj)(risk=traj.risk[keep], risk_draws=traj.risk_draws.loc[["t010", "t011"]], skill=traj.skill)
+    r = combine_evidence(study, analog, t2, PARAMS(n_boot=50), rng=np.random.default_rng(1))
+    comp = r.comparison.set_index("statistic")
+    assert comp.at["n_taxa_both_lines", "estimate"] == 2
+    assert np.isnan(comp.at["kendall_tau_b", "estimate"])
+    assert "need at least 3" in comp.at["kendall_tau_b", "note"]
+    assert "exceeds the 2 taxa" in comp.at["top_5_overlap", "note"]
+    assert len(r.disagreements) <= 2

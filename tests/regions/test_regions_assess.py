@@ -148,3 +148,24 @@ def test_layer_and_tables_follow_the_contract(setup, tmp_path):
     assert back["region_id"].tolist() == res.layer["region_id"].tolist()
     np.testing.assert_allclose(back["expected_losses"], res.layer["expected_losses"])
     assert "Regions" in res.summary()
+
+
+def test_region_without_records_is_flagged_and_hatched(setup):
+    import pandas as pd
+    from shapely.geometry import box
+
+    from analog.figures import maps
+
+    study, combined, _ = setup
+    extra = gpd.GeoDataFrame({"region_id": ["R9"], "name": ["Empty Reach"]}, geometry=[box(17, 40, 18, 41)],
+                             crs="EPSG:4326")
+    study2 = type(study)(**{**vars(study), "regions": pd.concat([study.regions, extra], ignore_index=True)})
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", AnalogWarning)
+        res = assess_regions(study2, combined, PARAMS(), rng=np.random.default_rng(2))
+    row = res.region_summary.set_index("region_id").loc["R9"]
+    assert row["n_taxa"] == 0 and row["n_records"] == 0 and row["expected_losses"] == 0
+    assert np.isnan(row["mean_combined_p"]) and row["data_flag"] == "insufficient data"
+    fig = maps.risk_map(res)
+    hatched = [c for c in fig.axes[0].collections if c.get_zorder() == 2 and c.get_hatch()]
+    assert len(hatched) == 1 and len(hatched[0].get_paths()) == 3  # R5, R6 and the empty R9
