@@ -1,8 +1,9 @@
 """Options of the analog-evidence stage: the ``[analog]`` section of study.toml."""
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, fields
 
+from ..errors import AnalogError
 from ..params import Params
 
 __all__ = ["AnalogParams", "PARAMS"]
@@ -84,6 +85,19 @@ class AnalogParams(Params):
     n_bootstrap: int = field(default=200, metadata={
         "min": 0, "max": 100000,
         "doc": "Bootstrap replicates over fossil taxa for the analog-risk intervals (0 = none)."})
+
+    def __post_init__(self):
+        # the same checks as Params.from_section, for options built directly in Python
+        for f in fields(self):
+            value, meta = getattr(self, f.name), f.metadata
+            if "choices" in meta and value not in meta["choices"]:
+                raise AnalogError(f"The '{f.name}' option of [analog] must be one of {list(meta['choices'])}. "
+                                  f"Got {value!r} instead.")
+            lo, hi = meta.get("min"), meta.get("max")
+            if isinstance(value, (int, float)) and not isinstance(value, bool) and (
+                    (lo is not None and value < lo) or (hi is not None and value > hi)):
+                raise AnalogError(f"The '{f.name}' option of [analog] must be in [{lo}, {hi}]. "
+                                  f"Got {value!r} instead.")
 
 
 PARAMS = AnalogParams

@@ -82,10 +82,10 @@ class Design:
                 continue
             raw = taxa[term.trait]
             if term.kind == "categorical":
-                values = raw.astype(object).where(raw.notna(), None).to_numpy()
+                values = raw.astype(object)
                 known = {t.level for t in self.terms if t.trait == term.trait} | {self.reference[term.trait]}
-                bad = np.array([v is None or str(v) not in known for v in values], dtype=bool)
-                x = np.array([str(v) == term.level for v in values], dtype=float)
+                bad = (values.isna() | ~values.isin(known)).to_numpy()
+                x = (values == term.level).to_numpy(dtype=float)
             elif term.kind == "ordinal":
                 levels = list(self.specs[term.trait].levels)
                 codes = pd.Categorical(raw.astype(object).where(raw.notna(), None), categories=levels).codes

@@ -11,7 +11,7 @@ from scipy.special import expit
 
 from ..errors import AnalogWarning
 from ..study import Study
-from .fates import FateDraws, compute_fates
+from .fates import compute_fates
 from .matching import match_relatives
 from .params import AnalogParams
 from .risk import bootstrap_risk, model_log_odds, relative_evidence, relatives_shift, shrink_to_relatives

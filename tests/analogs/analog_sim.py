@@ -110,3 +110,35 @@ def simulate_study(seed: int, *, n_taxa: int = 400, n_intervals: int = 5, beta: 
                   regions=None, intervals=intervals)
     truth = {"beta": beta, "intercepts": a, "lost_in": lost_in, "origin": origin}
     return study, truth
+
+
+def coverage_study(n_reps: int, *, seed0: int = 1000, params=None, **sim_kwargs) -> dict:
+    """Share of replicate datasets whose intervals cover the planted log odds.
+
+    Returns {'pooled': {term: share}, 'interval': {term: share}, 'n_reps': n} for the
+    non-intercept terms (planted values are the same in every interval, so both the
+    per-interval and the pooled estimates target them).
+    """
+    import warnings
+
+    from analog.analogs import AnalogParams, run_analog
+    from analog.errors import AnalogWarning
+
+    params = params or AnalogParams(age_draws=5, n_bootstrap=0)
+    pooled_hits: dict[str, list[bool]] = {}
+    interval_hits: dict[str, list[bool]] = {}
+    for rep in range(n_reps):
+        study, truth = simulate_study(seed0 + rep, **sim_kwargs)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", AnalogWarning)
+            result = run_analog(study, params, rng=np.random.default_rng(seed0 + rep))
+        sel = result.selectivity
+        for row in sel[sel["term"] != "intercept"].itertuples():
+            target = truth["beta"][row.term]
+            hit = bool(row.ci_low <= target <= row.ci_high)
+            (pooled_hits if row.scope == "pooled" else interval_hits).setdefault(row.term, []).append(hit)
+    return {"pooled": {k: float(np.mean(v)) for k, v in pooled_hits.items()},
+            "interval": {k: float(np.mean(v)) for k, v in interval_hits.items()},
+            "pooled_all": float(np.mean(sum(pooled_hits.values(), []))),
+            "interval_all": float(np.mean(sum(interval_hits.values(), []))),
+            "n_reps": n_reps}

@@ -1,7 +1,6 @@
 """Matching modern taxa to fossil relatives: similarity, top-k order, reasons."""
 import numpy as np
 import pandas as pd
-import pytest
 
 from analog.analogs.matching import match_relatives
 from analog.study import TraitSpec

@@ -1,9 +1,8 @@
 """Selectivity: trait coding, Firth fits per interval, combination over age draws."""
 import numpy as np
 import pandas as pd
-import pytest
 
-from analog_sim import BETA, TRAITS, simulate_study
+from analog_sim import BETA, simulate_study
 from analog.analogs.fates import compute_fates
 from analog.analogs.selectivity import build_design, fit_design, fit_intervals
 from analog.study import TraitSpec
@@ -111,7 +110,6 @@ def test_counts_and_thin_class_flags():
     assert fits.n_lost[0, j] == ((truth["lost_in"] == 0) & basin).sum()
     assert fits.n_at_risk[0, 0] == risk0.sum()
     # a class with no losses is flagged
-    fd_taxa = study.taxa.copy()
     flagged = fit_intervals(np.array([[1.0, 1.0]] * 6 + [[1.0, 0.0]] * 10), np.ones(16, bool),
                             np.ones((1, 1, 16), bool), np.r_[np.zeros(6), np.r_[np.ones(5), np.zeros(5)]]
                             .astype(bool)[None, None, :], np.array(["W"]),
