@@ -235,7 +235,8 @@ def _aligned_draws(frame: pd.DataFrame, results: dict, notes: list[str]) -> dict
     out = {}
     for line in LINES:
         d = raw[line].iloc[:, :n] if raw[line].shape[1] else pd.DataFrame(index=raw[line].index)
-        values = d.reindex(frame.index).to_numpy(dtype=float, copy=True) if d.shape[1] else np.full((len(frame), n), np.nan)
+        values = (d.reindex(frame.index).to_numpy(dtype=float, copy=True) if d.shape[1]
+                  else np.full((len(frame), n), np.nan))
         p = frame[f"{line}_p"].to_numpy()
         no_draws = ~np.isnan(p) & np.isnan(values).all(axis=1) if n else np.zeros(len(p), bool)
         if no_draws.any():

@@ -62,7 +62,7 @@ def assign_points(lon, lat, regions, *, engine: str = "local", chunk_size: int =
     id_rank = np.empty(len(regions), dtype=np.int64)
     id_rank[np.argsort(regions["region_id"].astype(str).to_numpy(), kind="stable")] = np.arange(len(regions))
 
-    def query(chunk: np.ndarray, offset: int) -> np.ndarray:
+    def query(chunk: np.ndarray) -> np.ndarray:
         pts = shapely.points(chunk)
         pi, ri = tree.query(pts, predicate="intersects")
         best = np.full(len(chunk), -1, dtype=np.int64)
@@ -74,14 +74,14 @@ def assign_points(lon, lat, regions, *, engine: str = "local", chunk_size: int =
         return best
 
     if engine == "local":
-        unique_region = query(xy, 0)
+        unique_region = query(xy)
     elif engine == "dask":
         try:
             import dask
         except ImportError as exc:  # pragma: no cover - optional dependency
             raise ImportError("engine='dask' needs Dask: pip install 'analog[dask]'") from exc
         starts = range(0, len(xy), chunk_size)
-        parts = [dask.delayed(query)(xy[s:s + chunk_size], s) for s in starts]
+        parts = [dask.delayed(query)(xy[s:s + chunk_size]) for s in starts]
         unique_region = np.concatenate(dask.compute(*parts, scheduler="threads"))
     else:
         raise ValueError(f"`engine` was {engine!r} but is expected to be in {{'local', 'dask'}}")
