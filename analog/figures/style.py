@@ -136,7 +136,12 @@ def place_labels(ax, anchors, texts, *, obstacles=(), fontsize: float = 7.5, max
     for a, p, s, h, anchor in zip(arts, pos, start, half, anchors):
         a.set_position(inv.transform(p))
         if np.hypot(*(p - s)) > 0.8 * h[1]:
-            end = inv.transform(p)
+            # the line stops at the edge of the label's box, not under its text
+            v = s - p
+            t = min(h[0] / abs(v[0]) if v[0] else np.inf, h[1] / abs(v[1]) if v[1] else np.inf)
+            if t >= 1:
+                continue
+            end = inv.transform(p + v * t)
             ax.plot([anchor[0], end[0]], [anchor[1], end[1]], zorder=5, **LEADER_LINE)
             if anchor_dot:
                 ax.plot([anchor[0]], [anchor[1]], marker="o", markersize=1.8, color=LEADER_LINE["color"], zorder=5)
