@@ -100,7 +100,7 @@ def fmt_pvalue(x: Any) -> str:
 
 def fmt_int(x: Any) -> str:
     v = _float(x)
-    return MISSING if math.isnan(v) else f"{int(round(v)):,}"
+    return MISSING if math.isnan(v) else _minus(f"{int(round(v)):,}")
 
 
 def fmt_ratio(x: Any) -> str:
@@ -229,6 +229,7 @@ class RegionView:
     inset: FigureRef | None
     n_present: int
     n_assessed: int
+    standing: str = ""  # how the region compares with the others, in words
 
 
 # --------------------------------------------------------------------------------------------------
@@ -530,13 +531,15 @@ def _agreement_words(tau: dict | None, rho: dict | None) -> dict:
         strength = "strongly"
     direction = "agree" if est >= 0 else "run in opposite directions"
     lo, hi = main["low"], main["high"]
+    name = "tau-b" if tau is not None else "rho"
     if math.isnan(lo) or math.isnan(hi):
-        certainty = "No interval could be computed for this statistic."
+        certainty = f"No interval could be computed for {name}."
     elif lo <= 0 <= hi:
-        certainty = ("Its interval includes zero, so on these data the agreement cannot be told apart from "
-                     "chance.")
+        certainty = (f"The interval of {name} includes zero, so on these data the agreement cannot be told apart "
+                     "from chance.")
     else:
-        certainty = "Its interval excludes zero."
+        certainty = (f"The interval of {name} excludes zero: the {'agreement' if est > 0 else 'disagreement'} is "
+                     "more than chance would give.")
     if est >= 0 and size < 0.1:
         headline = "The two lines of evidence hardly agree at all"
     elif est >= 0:
@@ -601,7 +604,16 @@ def _skill_line(r: _Run) -> dict:
               "user": "set in study.toml",
               "single line": "only one line of evidence was available"}.get(str(weights.get("source")),
                                                                            _text(weights.get("source")))
-    return {"analog": analog, "trajectory": traj,
+    if math.isnan(analog) or math.isnan(traj):
+        verdict = ""
+    elif abs(analog - traj) < 0.02:
+        verdict = "On these checks the two lines predicted about equally well."
+    else:
+        better, worse = ("analog", "trajectory") if analog > traj else ("trajectory", "analog")
+        verdict = (f"On these checks the {better} line predicted better than the {worse} line. The two checks are "
+                   "not the same test (held-out warming intervals against truncated histories), so read this as a "
+                   "rough guide.")
+    return {"analog": analog, "trajectory": traj, "verdict": verdict,
             "has_weights": not math.isnan(_float(weights.get("analog"))),
             "w_analog": _float(weights.get("analog")), "w_trajectory": _float(weights.get("trajectory")),
             "source": source}
@@ -621,6 +633,10 @@ def _summary(r: _Run, rankings: pd.DataFrame | None, regions: list[RegionView]) 
         tiers = assessed["tier"].astype(str).value_counts() if "tier" in assessed.columns else pd.Series(dtype=int)
         out["tier_counts"] = [(TIERS[n], int(tiers.get(n, 0))) for n in TIER_NAMES]
         top = _ordered_rankings(assessed).head(5)
+        lows = pd.to_numeric(top["combined_low"], errors="coerce") if "combined_low" in top.columns else None
+        highs = pd.to_numeric(top["combined_high"], errors="coerce") if "combined_high" in top.columns else None
+        # the first taxon's interval reaching below the last one's upper end: their order is not firm
+        out["top_overlap"] = bool(lows is not None and len(top) > 1 and lows.iloc[0] < highs.iloc[-1])
         out["top"] = [{"taxon": r.taxon(row.get("taxon_id"), row.get("scientificName")),
                        "p": fmt_p(row.get("combined_p")),
                        "range": fmt_prange(row.get("combined_low"), row.get("combined_high")),
@@ -781,7 +797,30 @@ def _regions(r: _Run, rankings: pd.DataFrame | None, *, draw_insets: bool) -> li
         inset = _region_inset(r, rid, name) if draw_insets else None
         views.append(RegionView(rid, slug, name, flagged, flag, indices, by_line, top, present, inset,
                                 n_present, n_assessed))
+    _standing(views, rows)
     return views
+
+
+def _ordinal(n: int) -> str:
+    suffix = "th" if 10 <= n % 100 <= 20 else {1: "st", 2: "nd", 3: "rd"}.get(n % 10, "th")
+    return f"{n}{suffix}"
+
+
+def _standing(views: list[RegionView], rows: list[dict]) -> None:
+    """'ranks 3rd of 11 by expected losses and 5th by mean score', among regions with enough data."""
+    ok = {str(row["region_id"]): row for row in rows if not _flagged(row.get("data_flag"))}
+    places = {}
+    for col in ("expected_losses", "mean_combined_p"):
+        values = sorted((-_float(row.get(col)), rid) for rid, row in ok.items() if not math.isnan(_float(row.get(col))))
+        places[col] = {rid: i + 1 for i, (_, rid) in enumerate(values)}
+    n = len(ok)
+    for v in views:
+        a, b = places["expected_losses"].get(v.region_id), places["mean_combined_p"].get(v.region_id)
+        if v.flagged or n < 2 or a is None:
+            continue
+        text = f"Among the {n} regions with enough data, {v.name} ranks {_ordinal(a)} by expected losses"
+        text += f" and {_ordinal(b)} by mean score" if b is not None else ""
+        v.standing = text + " (1st = most vulnerable)."
 
 
 def _region_overview(r: _Run, regions: list[RegionView]) -> Table:
@@ -1089,8 +1128,17 @@ def _noise_null(r: _Run) -> dict:
                                f"{fmt_pvalue(pv).lstrip('<')})")
             else:
                 same.append(label.lower())
+        verdict = ""
+        peaked = part[part["statistic"].astype(str) == "peakedness"] if "statistic" in part.columns else part.iloc[0:0]
+        if g in ("completed", "") and len(peaked):
+            obs, mean, pv = (_float(peaked.iloc[0].get(c)) for c in ("observed", "null_mean", "p_value"))
+            if not any(math.isnan(v) for v in (obs, mean, pv)):
+                verdict = ("So finished histories here are more sharply hat-shaped than pinned noise would draw: "
+                           "the hat is more than an artefact on these data." if pv < ALPHA and obs > mean else
+                           "So finished histories here are no more hat-shaped than pinned noise would draw: on these "
+                           "data a hat-shaped history is weak evidence on its own.")
         groups.append({"name": _NULL_GROUPS.get(g, _pretty(g).capitalize() if g else "All histories"),
-                       "key": g, "n": fmt_count(n), "differs": differs, "same": same})
+                       "key": g, "n": fmt_count(n), "differs": differs, "same": same, "verdict": verdict})
     cols = [Column("Histories"), Column("Shape statistic"), Column("Observed (mean)", True),
             Column("Noise null (mean)", True), Column("Noise null interval", True),
             Column("p", True, "Observed mean against the null distribution of the mean"),
@@ -1115,7 +1163,9 @@ def _preferred_counts(r: _Run) -> list[tuple[str, int]]:
     tr = r.table("trajectory", "trajectory_risk.csv")
     if tr is None or "preferred_model" not in tr.columns:
         return []
-    counts = tr["preferred_model"].dropna().map(_model_label).value_counts()
+    scored = tr if "trajectory_p" not in tr.columns else tr[pd.to_numeric(tr["trajectory_p"], errors="coerce").notna()]
+    labels = scored["preferred_model"].map(lambda v: _model_label(v) if _text(v).strip() else "")
+    counts = labels[labels != ""].value_counts()
     return sorted(((str(k), int(v)) for k, v in counts.items()), key=lambda kv: (-kv[1], kv[0]))
 
 
@@ -1155,8 +1205,8 @@ def _disagreements(r: _Run) -> Table | None:
             Cell(fmt_int(row.get("trajectory_rank")), sort_key(row.get("trajectory_rank")), "num"),
             Cell(fmt_int(row.get("rank_difference")), sort_key(row.get("rank_difference")), "num"),
             Cell(_pretty(_text(row.get("higher_on"))) or MISSING),
-            Cell(fmt_num(row.get("analog_p")), sort_key(row.get("analog_p")), "num"),
-            Cell(fmt_num(row.get("trajectory_p")), sort_key(row.get("trajectory_p")), "num"),
+            Cell(fmt_p(row.get("analog_p")), sort_key(row.get("analog_p")), "num"),
+            Cell(fmt_p(row.get("trajectory_p")), sort_key(row.get("trajectory_p")), "num"),
             Cell(_drivers(r, row.get("analog_drivers"))),
             Cell(_model_label(row.get("preferred_model")) if _text(row.get("preferred_model"))
                  else _text(row.get("trajectory_driver")) or MISSING),

@@ -182,9 +182,15 @@ def make_results():
     hindcast = pd.DataFrame({"model": ["rise_and_fall", "random_walk", "model_average"], "auc": [0.71, 0.55, 0.66],
                              "auc_low": [0.62, 0.45, 0.57], "auc_high": [0.8, 0.65, 0.75],
                              "brier": [0.18, 0.24, 0.2], "n_lost": [20, 20, 20], "n_survived": [30, 30, 30]})
-    noise = pd.DataFrame({"level": ["taxon", "taxon", "dataset"], "taxon_id": ["x1", "x2", pd.NA],
-                          "statistic": ["peak_position", "peak_position", "symmetry"],
-                          "value": [0.4, 0.6, 0.12], "p_value": [0.5, 0.4, 0.03]})
+    noise = pd.DataFrame({  # columns as analog.trajectory.null.NULL_COLUMNS
+        "level": ["taxon", "taxon", "dataset", "dataset", "dataset", "dataset"],
+        "group": ["completed", "completed", "completed", "completed", "completed", "ends_in_interval"],
+        "taxon_id": ["x1", "x2", pd.NA, pd.NA, pd.NA, pd.NA],
+        "statistic": ["peak_position", "peak_position", "peak_position", "symmetry", "peakedness", "symmetry"],
+        "observed": [0.4, 0.6, 0.52, 0.01, 2.6, 0.2], "null_mean": [0.5, 0.5, 0.5, 0.0, 1.8, 0.0],
+        "null_low": [0.1, 0.1, 0.45, -0.05, 1.7, -0.05], "null_high": [0.9, 0.9, 0.55, 0.05, 1.9, 0.05],
+        "p_value": [0.5, 0.4, 0.6, 0.7, 0.001, 0.004], "test_p_value": [np.nan, np.nan, 0.3, 0.5, 0.002, 0.01],
+        "n_taxa": [1, 1, 2, 2, 2, 3]})
     traj = FakeTrajectory(pd.DataFrame({"taxon_id": ids, "preferred_model": ["rise_and_fall", "random_walk"] * 4}),
                           hindcast, noise)
 
