@@ -196,39 +196,14 @@ def run_analog(study: Study, params: AnalogParams | None = None, *, rng: np.rand
     complete = ~missing_fossil.any(axis=1).to_numpy() if len(design.specs) else np.ones(len(fossil), bool)
 
     # --- which intervals inform the model ---------------------------------------------------
-    usable = at_risk & complete[None, None, :]
-    mean_risk = usable.sum(axis=2).mean(axis=0)
-    any_lost = (lost & complete[None, None, :]).sum(axis=2).max(axis=0) > 0
-    any_surv = (usable & ~lost).sum(axis=2).max(axis=0) > 0
-    reason = np.full(len(intervals), "", dtype=object)
-    reason[weights <= 0] = "no warming estimate or zero weight"
-    reason[(reason == "") & (mean_risk < params.min_at_risk)] = f"fewer than {params.min_at_risk} taxa at risk"
-    reason[(reason == "") & ~any_lost] = "no taxon lost"
-    reason[(reason == "") & ~any_surv] = "no taxon survived"
-    used = np.flatnonzero(reason == "")
-    skipped_with_data = [f"{intervals.at[i, 'interval_id']} ({reason[i]}, {mean_risk[i]:.3g} at risk)"
-                         for i in range(len(intervals)) if reason[i] and mean_risk[i] > 0]
-    if skipped_with_data:
-        warnings.warn("intervals left out of the selectivity model: " + "; ".join(skipped_with_data) + ".",
-                      AnalogWarning, stacklevel=2)
-    weight_table = pd.DataFrame({
-        "interval_id": intervals["interval_id"].astype(str),
-        "warming_c": intervals["warming_c"].to_numpy(dtype=float),
-        "weight": weights,
-        "name": intervals["name"].astype(str) if "name" in intervals else intervals["interval_id"].astype(str),
-        "used": reason == "",
-        "reason": pd.array(reason.astype(str), dtype="str"),
-        "oldest_ma": intervals["oldest_ma"].to_numpy(dtype=float),
-        "youngest_ma": intervals["youngest_ma"].to_numpy(dtype=float),
-    })
+    weight_table = _interval_table(intervals, weights, at_risk, lost, complete, params)
+    used = np.flatnonzero(weight_table["used"].to_numpy())
     notes.append(f"Intervals are weighted by exp(-0.5 ((warming - {study.config.warming_c:g}) / "
                  f"{params.weight_scale_c:g})^2), scaled so the closest is 1; in pooling each interval's "
                  "random-effects weight 1 / (variance + tau^2) is multiplied by its similarity weight "
                  "(tau^2, Q and I^2 are from the unweighted fit).")
 
     # --- selectivity per interval and pooled -------------------------------------------------
-    terms = design.terms
-    p = len(terms)
     if used.size:
         fits = fit_intervals(X_fossil, complete, at_risk[:, used], lost[:, used], fd.interval_ids[used], design,
                              ci_method=params.ci_method, alpha=alpha, min_class_size=params.min_class_size,
@@ -244,9 +219,10 @@ def run_analog(study: Study, params: AnalogParams | None = None, *, rng: np.rand
         loo = leave_one_out(fits, X_fossil, complete, at_risk[:, used], lost[:, used], weights[used],
                             method=params.pooling_method, hksj=params.hksj)
         if params.ci_method == "profile" and params.age_draws > 1:
-            notes.append("Per-interval profile intervals are combined over age draws by widening each draw's "
-                         "distances below and above its estimate by sqrt(total / within variance) from "
-                         "Rubin's rules (and t / z on Rubin's degrees of freedom).")
+            notes.append(f"Per-interval profile intervals are computed on {params.profile_draws} age draw(s) per "
+                         "interval; their distances below and above the estimate are placed around the Rubin "
+                         "estimate and widened by sqrt(total / within variance) and t / z on Rubin's degrees "
+                         "of freedom.")
     else:
         fits, pooled, loo = None, None, _empty(["interval_id", "auc", "n_at_risk", "n_lost"])
         warnings.warn("no warming interval has enough fossil data for the selectivity model; analog risk "
@@ -270,6 +246,36 @@ def run_analog(study: Study, params: AnalogParams | None = None, *, rng: np.rand
     return AnalogResult(matches=matches.table, selectivity=selectivity, pooling=pooling, loo=loo,
                         fates=fates_table, risk=risk, risk_draws=draws, contributions=contributions,
                         interval_weights=weight_table, skill=skill, notes=notes, params=params)
+
+
+def _interval_table(intervals: pd.DataFrame, weights: np.ndarray, at_risk: np.ndarray, lost: np.ndarray,
+                    complete: np.ndarray, params: AnalogParams) -> pd.DataFrame:
+    """interval_id, warming_c, weight, name, used, reason (why an interval is left out), window."""
+    usable = at_risk & complete[None, None, :]
+    mean_risk = usable.sum(axis=2).mean(axis=0)
+    any_lost = (lost & usable).sum(axis=2).max(axis=0) > 0
+    any_surv = (usable & ~lost).sum(axis=2).max(axis=0) > 0
+    reason = np.full(len(intervals), "", dtype=object)
+    reason[weights <= 0] = "no warming estimate or zero weight"
+    reason[(reason == "") & (mean_risk < params.min_at_risk)] = f"fewer than {params.min_at_risk} taxa at risk"
+    reason[(reason == "") & ~any_lost] = "no taxon lost"
+    reason[(reason == "") & ~any_surv] = "no taxon survived"
+    skipped = [f"{intervals.at[i, 'interval_id']} ({reason[i]}, {mean_risk[i]:.3g} at risk)"
+               for i in range(len(intervals)) if reason[i] and mean_risk[i] > 0]
+    if skipped:
+        warnings.warn("intervals left out of the selectivity model: " + "; ".join(skipped) + ".",
+                      AnalogWarning, stacklevel=3)
+    ids = intervals["interval_id"].astype(str)
+    return pd.DataFrame({
+        "interval_id": ids,
+        "warming_c": intervals["warming_c"].to_numpy(dtype=float),
+        "weight": weights,
+        "name": intervals["name"].astype(str) if "name" in intervals else ids,
+        "used": reason == "",
+        "reason": pd.array(reason.astype(str), dtype="str"),
+        "oldest_ma": intervals["oldest_ma"].to_numpy(dtype=float),
+        "youngest_ma": intervals["youngest_ma"].to_numpy(dtype=float),
+    })
 
 
 def _selectivity_table(fits, pooled: pd.DataFrame, design: Design, params: AnalogParams) -> pd.DataFrame:

@@ -29,8 +29,13 @@ BETA = {"depth_zone[slope]": 0.0, "depth_zone[basin]": 1.2, "body_size": -0.6, "
 
 def simulate_study(seed: int, *, n_taxa: int = 400, n_intervals: int = 5, beta: dict | None = None,
                    intercepts=None, background: float = 0.1, age_halfwidth: float = 0.3,
-                   warming=None) -> tuple[Study, dict]:
-    """A Study with planted selectivity; returns (study, truth)."""
+                   warming=None, ambiguous: float = 0.0) -> tuple[Study, dict]:
+    """A Study with planted selectivity; returns (study, truth).
+
+    ``ambiguous``: share of lost taxa given one more occurrence, truly inside the window of
+    their loss but dated to a range that runs 1 Myr past the window's young edge (so in
+    some age draws they look like survivors).
+    """
     rng = np.random.default_rng(seed)
     beta = dict(BETA if beta is None else beta)
     K = n_intervals
@@ -79,6 +84,9 @@ def simulate_study(seed: int, *, n_taxa: int = 400, n_intervals: int = 5, beta: 
         half = np.full(centres.size, age_halfwidth)
         for c, h in zip(centres, half):
             rows.append((f"T{t:04d}", c + h, max(c - h, 0.0)))
+        k = lost_in[t]
+        if k >= 0 and rng.random() < ambiguous:
+            rows.append((f"T{t:04d}", lad[t], young[k] - 1.0))
     occ = pd.DataFrame(rows, columns=["taxon_id", "oldest_ma", "youngest_ma"])
     occ.insert(0, "occurrenceID", [f"O{i:05d}" for i in range(len(occ))])
     occ["decimalLatitude"] = 0.0
