@@ -77,7 +77,8 @@ class PageScan(HTMLParser):
             self._table = None
 
     def handle_data(self, data):
-        self.text.append(data)
+        if not self.stack or self.stack[-1] not in ("script", "style"):
+            self.text.append(data)
         if self._cell is not None:
             self._cell["text"] += data
 
@@ -192,6 +193,13 @@ def test_summary_states_agreement_and_hindcast_in_words(pages):
     assert "more sharply hat-shaped than pinned noise would draw" in text
     assert "they carry more of their history late than pinned noise (symmetry 0.20 against 0.00, p = 0.004)" in text
     assert "Their intervals overlap widely" not in text  # top-5 intervals 0.71-0.91 vs 0.23-0.43 do not overlap
+
+
+def test_no_sentences_run_together(pages):
+    # template whitespace control must not glue a sentence to the next one ("...apart.Best")
+    for name, html in pages.items():
+        text = re.sub(r"\s+", " ", "".join(scan(html).text))
+        assert not re.findall(r"[a-z)]\.[A-Z][a-z]", text), (name, re.findall(r".{30}[a-z)]\.[A-Z][a-z].{10}", text))
 
 
 def test_agreement_interval_through_zero_is_called_chance(synthetic_run):
