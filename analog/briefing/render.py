@@ -1531,6 +1531,7 @@ def build_briefing(run: Any, *, figures: Mapping[str, Mapping[str, bytes]] | Non
         "tier_rule": _tier_rule(r),
         "interval_label": ilabel,
         "missing": MISSING,
+        "no_figures": "" if r.figures or draw_insets else "No figures were drawn for this run; the tables are complete.",
     }
     ranking_table = _ranking_table(r, rankings, table_id="ranking",
                                    caption="All living taxa in the study, by combined relative vulnerability") \

@@ -288,6 +288,8 @@ def test_missing_stages_are_said_plainly(synthetic_run):
     assert "This part did not run: not available." in html
     assert "No data are available for this part." in html  # regions: never ran, no reason recorded
     assert "<img" not in html
+    with_tables = build_briefing(synthetic_run, figures={})["briefing.html"]
+    assert "No figures were drawn for this run; the tables are complete." in with_tables
 
 
 def test_missing_columns_do_not_crash(synthetic_run):
