@@ -20,6 +20,10 @@ REFERENCES: dict[str, tuple[str, str]] = {
                     "20(12): 1771–1782."),
     "sidik2002": ("Sidik & Jonkman 2002", "Sidik, K. & Jonkman, J. N. (2002). A simple confidence interval for "
                   "meta-analysis. Statistics in Medicine 21(21): 3153–3159."),
+    # checked: J. Educ. Behav. Stat. 30(3): 261-293
+    "viechtbauer2005": ("Viechtbauer 2005", "Viechtbauer, W. (2005). Bias and efficiency of meta-analytic "
+                        "variance estimators in the random-effects model. Journal of Educational and Behavioral "
+                        "Statistics 30(3): 261–293."),
     "higgins2002": ("Higgins & Thompson 2002", "Higgins, J. P. T. & Thompson, S. G. (2002). Quantifying "
                     "heterogeneity in a meta-analysis. Statistics in Medicine 21(11): 1539–1558."),
     # checked: Biometrics 27(4): 857-871

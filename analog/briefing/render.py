@@ -1246,49 +1246,85 @@ def _sensitivity(r: _Run) -> dict:
 
 # -- methods and provenance --------------------------------------------------------------------------
 def _methods(r: _Run) -> list[dict]:
+    """The methods in plain words with their sources, stating the settings of this run where known."""
     warming = _float(getattr(r.config, "warming_c", math.nan))
     ilabel = _interval_label(r)
+
+    def opt(section, name, fmt="{}", default=""):
+        v = r.param(section, name)
+        return default if v is None else fmt.format(v)
+
+    draws = opt("analog", "age_draws", " ({} draws)")
+    guards = []
+    if r.param("analog", "drop_singletons") is True:
+        guards.append("taxa known only from inside an interval's window are left out of it (they would all "
+                      "count as lost)")
+    if r.param("analog", "range_through") is True:
+        guards.append("a taxon counts as present between its first and last occurrence (range-through)")
+    pooling = {"REML": "restricted maximum likelihood (REML)", "DL": "the DerSimonian–Laird estimator"}.get(
+        str(r.param("analog", "pooling_method")), "DerSimonian–Laird or REML")
+    hksj = {"auto": "applied when fewer than five intervals inform a term", "on": "applied",
+            "off": "not applied"}.get(str(r.param("analog", "hksj")), "available")
+    scale = opt("analog", "weight_scale_c", "a Gaussian weight with a scale of {:g} °C")
+    units = r.param("trajectory", "units")
+    unit_text = (f"equal-area grid cells{opt('trajectory', 'cell_km', ' {:g} km across')}" if units == "grid" else
+                 "localities" if units == "locality" else "grid cells or localities")
+    width = _float(r.param("trajectory", "bin_width_ma"))
+    bins = f"{width:g}-million-year bins" if not math.isnan(width) and r.param("trajectory", "bins") == "fixed" \
+        else "time bins"
+    horizon = _float(r.param("trajectory", "horizon_bins"))
+    horizon_text = (f" within {horizon * width:g} million years" if not (math.isnan(horizon) or math.isnan(width))
+                    else " within a geological horizon")
+    threshold = opt("trajectory", "threshold_occupancy", " (occupancy {:g})")
     methods = [
         {"title": "Past warming intervals and fates",
          "text": ("Fossil taxa are followed through a catalogue of past episodes of volcanic CO₂ release and "
                   "warming. A taxon is at risk in an interval when its range reaches into it and lost when its "
-                  "last occurrence falls inside it (boundary-crosser logic). Occurrence ages are ranges; point "
-                  "ages are drawn within them many times and the results combined with Rubin's rules, so age "
+                  "last occurrence falls inside it (boundary-crosser logic)"
+                  + (f"; {'; '.join(guards)}" if guards else "") + ". Occurrence ages are ranges; point ages "
+                  f"are drawn within them many times{draws} and the results combined with Rubin's rules, so age "
                   "uncertainty widens the intervals."),
-         "refs": ["foote2000", "rubin1987"]},
+         "refs": ["foote2000", "signor1982", "rubin1987"]},
         {"title": "Selectivity",
          "text": ("Within each interval, loss is modelled by logistic regression on trait classes with Firth's "
                   "penalized likelihood, which gives finite estimates in the small and separated samples "
-                  "typical of fossil data, with profile penalized-likelihood intervals."),
+                  "typical of fossil data, with profile penalized-likelihood intervals. Categorical traits are "
+                  "compared with a reference class, ordered traits per step, numeric traits per standard "
+                  "deviation."),
          "refs": ["firth1993", "heinze2002"]},
         {"title": "Pooling across intervals",
-         "text": ("Per-interval log odds ratios are pooled by random-effects meta-analysis, with between-interval "
-                  "variance tau², Cochran's Q and I²; with few intervals the Hartung–Knapp–Sidik–Jonkman "
-                  f"adjustment is available. Intervals are weighted by how close their warming was to the "
-                  f"scenario ({'+' + format(warming, 'g') + ' °C' if not math.isnan(warming) else 'as set'}). "
-                  "Leave-one-interval-out checks predict each interval's losses from the others (AUC)."),
-         "refs": ["dersimonian1986", "hartung2001", "sidik2002", "higgins2002", "hanley1982", "ipcc2021"]},
+         "text": (f"Per-interval log odds ratios are pooled by random-effects meta-analysis, with the "
+                  f"between-interval variance tau² estimated by {pooling}, Cochran's Q and I²; the "
+                  f"Hartung–Knapp–Sidik–Jonkman adjustment for few intervals is {hksj}. Intervals are weighted by "
+                  "how close their warming was to the scenario "
+                  f"({'+' + format(warming, 'g') + ' °C' if not math.isnan(warming) else 'as set'}"
+                  f"{', ' + scale if scale else ''}). Leave-one-interval-out checks predict each interval's "
+                  "losses from the others and score them by AUC."),
+         "refs": ["dersimonian1986", "viechtbauer2005", "hartung2001", "sidik2002", "higgins2002", "hanley1982",
+                  "ipcc2021"]},
         {"title": "Matching living taxa to fossil relatives",
          "text": ("Each living taxon is matched to fossil relatives by taxonomic distance on the rank tree "
                   "combined with Gower's mixed-type trait distance (Podani's extension for ordinal traits). Its "
-                  "analog score combines the pooled trait model with its relatives' observed fates; intervals "
-                  "come from a bootstrap over fossil taxa."),
+                  "analog score combines the pooled trait model's prediction with its relatives' observed fates; "
+                  "intervals come from a bootstrap over fossil taxa."),
          "refs": ["gower1971", "podani1999", "efron1993"]},
         {"title": "Occupancy trajectories",
-         "text": ("For each lineage, occupancy per time bin is the share of sampled units (grid cells or "
-                  "localities) where it was found. Stasis, random walk, random walk with drift and rise-and-fall "
-                  "models are fitted to logit occupancy and compared by AICc and Akaike weights."),
+         "text": (f"For each lineage, occupancy in {bins} is the share of sampled {unit_text} where it was "
+                  "found. Stasis, random walk, random walk with drift and rise-and-fall models are fitted to logit "
+                  "occupancy and compared by AICc and Akaike weights."),
          "refs": ["foote2007", "liow2007", "hurvich1989", "burnham2002"]},
         {"title": "Trajectory score",
-         "text": ("For living taxa, the chance of reaching a quasi-extinction threshold within a geological horizon "
+         "text": (f"For living taxa, the chance of falling to a quasi-extinction threshold{threshold}{horizon_text} "
                   "uses the diffusion approximation (first passage of Brownian motion with drift) for the "
                   "random-walk models and the projected curve for rise-and-fall, averaged over models with "
-                  "Akaike weights and a parametric bootstrap for uncertainty."),
+                  "Akaike weights, with a parametric bootstrap for uncertainty. The horizon is geological: the "
+                  "score ranks lineages and is not a dated forecast."),
          "refs": ["lande1988", "dennis1991", "burnham2002"]},
         {"title": "Noise null and hindcast",
          "text": ("A random walk pinned to zero at its start and end (a Brownian excursion) draws hat shapes by "
-                  "itself; completed trajectories are compared with simulated excursions. The hindcast truncates "
-                  "histories of taxa whose fate is known and scores each reading by AUC and Brier score."),
+                  "itself; finished histories are compared with simulated excursions of the same length. The "
+                  "hindcast cuts short the histories of taxa whose fate is known and scores each reading by AUC "
+                  "and Brier score."),
          "refs": ["hanley1982", "brier1950"]},
         {"title": "Combined ranking and comparison",
          "text": ("The two scores are pooled on the logit scale with weights from each line's measured skill (or "
