@@ -14,8 +14,9 @@ import inspect
 import math
 import re
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from importlib import resources
+from pathlib import Path
 from typing import Any, Mapping
 
 import jinja2
@@ -349,9 +350,6 @@ class _Run:
         self.used_figures.add(stem)
         dpi = _float(self.param("figures", "dpi", 300))
         return _figure_ref(stem, formats, alt=alt, caption=caption, dpi=300.0 if math.isnan(dpi) else dpi)
-
-    def figures_with_prefix(self, prefix: str) -> list[str]:
-        return sorted(s for s in self.figures if s.startswith(prefix))
 
 
 EMBED_MAX_PX = 2400  # wider PNGs are downsampled for embedding (8 inches at 300 dpi is plenty on screen and paper)
@@ -1411,22 +1409,16 @@ def _provenance(r: _Run) -> dict:
 
 
 def _is_demo(r: _Run) -> bool:
-    try:
-        from .._resources import resource_dir
+    """The embedded demo study (or a study whose name says it is a demo): its data are invented."""
+    from .._resources import resource_dir
 
-        demo = resource_dir("demo").resolve()
-        folder = getattr(r.config, "folder", None)
-        if folder is not None and _path_resolve(folder) == demo:
+    folder = getattr(r.config, "folder", None)
+    try:
+        if folder is not None and Path(folder).resolve() == resource_dir("demo").resolve():
             return True
-    except Exception:  # noqa: BLE001 - only a hint for the demo caution
+    except OSError:  # no shipped demo folder: fall back on the name
         pass
     return str(getattr(r.config, "name", "")).strip().lower().startswith("demo")
-
-
-def _path_resolve(p: Any):
-    from pathlib import Path
-
-    return Path(p).resolve()
 
 
 # -- figures by section -------------------------------------------------------------------------------
