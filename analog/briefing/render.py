@@ -1516,10 +1516,10 @@ def build_briefing(run: Any, *, figures: Mapping[str, Mapping[str, bytes]] | Non
         A finished run. Missing stages, tables or columns are tolerated: the page says plainly
         which sections have no data and why.
     figures : mapping, optional
-        Figure stem -> {format: bytes} as rendered by the output writer. Figures are found by stem
-        prefix (``forest_``, ``trajectory``, ``null``, ``risk_map``, ``side_by_side``,
-        ``difference_map``, ``rank_scatter``, ``top_taxa``); any other stem is shown under
-        "Other figures".
+        Figure stem -> {format: bytes} as rendered by the output writer. Figures are placed by
+        their stems (``forest_*``, ``trajector*``, ``*null*``, ``*map*`` with ``difference`` or
+        ``by_line``/``side_by_side`` variants, ``rank_scatter``, ``top_taxa``); any other stem is
+        shown under "Other figures", so nothing drawn is lost.
     draw_insets : bool, optional
         Draw a map inset per region with ``analog.figures.maps.region_inset`` when that function
         exists. Default: only when ``figures`` is non-empty (so a run without figures stays
@@ -1533,8 +1533,9 @@ def build_briefing(run: Any, *, figures: Mapping[str, Mapping[str, bytes]] | Non
 
     Notes
     -----
-    Pages are self-contained: figures are embedded as base64 PNG data, CSS and the small sorting
-    script are inline, nothing is fetched from the network. Region file names are the region ids
+    Pages are self-contained: each figure is embedded as base64 data (its SVG when that is smaller
+    than the PNG, else the PNG, downsampled beyond ``EMBED_MAX_PX`` pixels wide), CSS and the small
+    sorting script are inline, and a Content-Security-Policy forbids fetching anything. Region file names are the region ids
     with characters outside ``A-Z a-z 0-9 . _ -`` replaced by ``_`` (see :func:`region_page_name`).
     """
     r = _Run(run, figures)
