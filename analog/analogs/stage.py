@@ -345,8 +345,11 @@ def _risk(modern, design, fossil, X_fossil, complete, at_risk, lost, weights, us
     fill[0] = 1.0
     for name in missing_mod.columns[missing_mod.any(axis=0).to_numpy()]:
         label = design.specs[name].display
+        raw = modern[name]
         for e in np.flatnonzero(missing_mod[name].to_numpy()):
-            note[e].append(f"{label} missing or unseen among fossil taxa; its average effect used")
+            what = (f"{label} missing" if pd.isna(raw.iloc[e])
+                    else f"{label} '{raw.iloc[e]}' not seen among fossil taxa")
+            note[e].append(f"{what}; its average effect used")
     lp, contrib = model_log_odds(X_mod, beta, fill)
     p_model = expit(lp)
     p_risk = at_risk.mean(axis=0).astype(float)

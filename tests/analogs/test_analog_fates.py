@@ -102,3 +102,18 @@ def test_midpoints_with_one_draw_and_uniform_within_range():
 def test_unknown_rule_is_rejected():
     with pytest.raises(ValueError, match="`at_risk_rule` was 'x'"):
         window_fates(np.ones((1, 1)), np.ones((1, 1)), [2.0], [0.5], at_risk_rule="x")
+
+
+def test_coarsely_dated_occurrences_are_left_out():
+    # B's only young occurrence is dated to [1, 15] Ma (14 Myr wide): with a 10 Myr limit its
+    # last appearance is 11 Ma, inside the window, so it counts as lost there.
+    taxa = pd.DataFrame({"taxon_id": ["A", "B", "C"], "extant": [False, False, False]})
+    occ = pd.DataFrame({"taxon_id": ["A", "A", "B", "B", "B", "C"],
+                        "oldest_ma": [20.0, 11.0, 20.0, 11.0, 15.0, 40.0],
+                        "youngest_ma": [20.0, 11.0, 20.0, 11.0, 1.0, 10.0]})
+    intervals = pd.DataFrame({"interval_id": ["W"], "oldest_ma": [12.0], "youngest_ma": [10.0]})
+    fd = compute_fates(taxa, occ, intervals, age_draws=1, max_age_range=10.0, rng=None)
+    assert list(fd.taxon_ids) == ["A", "B"] and fd.coarse_only_taxa == ("C",) and fd.coarse_occurrences == 2
+    assert fd.lost[0, 0].tolist() == [True, True]
+    everything = compute_fates(taxa, occ, intervals, age_draws=1, max_age_range=0.0, rng=None)
+    assert everything.lost[0, 0].tolist() == [True, False, False]   # B's midpoint 8 Ma: survived

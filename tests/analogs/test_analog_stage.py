@@ -164,3 +164,18 @@ def test_demo_recovers_planted_signs():
         assert np.sign(pooled.at[term, "estimate"]) == np.sign(planted), term
     assert r.skill > 0.5
     assert r.risk["analog_p"].between(0, 1).all()
+
+
+def test_missing_trait_of_a_modern_taxon_is_noted():
+    study, _ = simulate_study(12, n_taxa=250, n_intervals=2)
+    extant = study.taxa.index[study.taxa["extant"]]
+    study.taxa.loc[extant[0], "depth_zone"] = np.nan
+    tid = study.taxa.at[extant[0], "taxon_id"]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", AnalogWarning)
+        r = run_analog(study, AnalogParams(**FAST), rng=np.random.default_rng(2))
+    note = r.risk.set_index("taxon_id").at[tid, "note"]
+    assert "Depth zone missing; its average effect used" in note
+    assert r.risk.set_index("taxon_id").drop(tid)["note"].str.contains("Depth zone").sum() == 0
+    c = r.contributions[r.contributions["taxon_id"] == tid].set_index("term")["log_odds_contribution"]
+    assert c.loc["depth_zone[basin]"] != 0 and c.loc["depth_zone[slope]"] != 0  # average, not the reference
