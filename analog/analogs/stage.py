@@ -41,7 +41,8 @@ class AnalogResult:
     selectivity : DataFrame
         selectivity.csv: ``scope, term, log_odds, se, ci_low, ci_high, odds_ratio, n_at_risk,
         n_lost, method`` then ``trait, level, unit, label, n_missing_traits, draws_fitted, flag``.
-        ``scope`` is an interval_id or ``'pooled'``.
+        ``scope`` is an interval_id or ``'pooled'``. Counts are averages over age draws
+        (sums over intervals on pooled rows); ``flag`` marks classes too thin to estimate well.
     pooling : DataFrame
         pooling.csv: ``term, estimate, se, ci_low, ci_high, tau2, i2, q, q_p, k, method``.
     loo : DataFrame
@@ -151,6 +152,22 @@ def run_analog(study: Study, params: AnalogParams | None = None, *, rng: np.rand
        a reference taxon) with strength ``prior_strength``, updated with the relatives'
        losses and trials, each weighted by match similarity and interval weight.
        Bootstrap over fossil taxa gives ``analog_low``/``analog_high``.
+
+    Counts (``n_at_risk``, ``n_lost``) are averages over age draws; on ``'pooled'`` rows
+    they are sums over the intervals used (taxon-interval pairs).
+
+    References
+    ----------
+    Foote, M. (2000). Origination and extinction components of taxonomic diversity: general
+    problems. Paleobiology 26(S4), 74-102.
+    Firth, D. (1993). Bias reduction of maximum likelihood estimates. Biometrika 80, 27-38.
+    Heinze, G. & Schemper, M. (2002). A solution to the problem of separation in logistic
+    regression. Statistics in Medicine 21, 2409-2419.
+    Rubin, D. B. (1987). Multiple Imputation for Nonresponse in Surveys. Wiley.
+    DerSimonian, R. & Laird, N. (1986). Meta-analysis in clinical trials. Controlled Clinical
+    Trials 7, 177-188.
+    Gower, J. C. (1971). A general coefficient of similarity and some of its properties.
+    Biometrics 27, 857-871.
     """
     from ..reference import interval_weights
 
