@@ -175,7 +175,9 @@ def rubin_combine(estimates, variances, *, df_complete=None):
         if df_complete is None:
             df = df_old
         else:
-            df_obs = (df_complete + 1.0) / (df_complete + 3.0) * df_complete * (1.0 - lam)
+            # 1 - lambda as W / T: no cancellation when W is tiny next to B
+            df_obs = ((df_complete + 1.0) / (df_complete + 3.0) * df_complete
+                      * np.where(lam == 0, 1.0, within / total))
             df = np.where(np.isinf(df_old), df_obs, df_old * df_obs / (df_old + df_obs))
         fmi = np.where(np.isinf(riv), 1.0, (riv + 2.0 / (df + 3.0)) / (1.0 + riv))  # W = 0: limit 1
     nan = m == 0

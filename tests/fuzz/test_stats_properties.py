@@ -419,6 +419,8 @@ def draws(draw, min_m=1, max_m=10):
 # no within-draw variance: riv is infinite and fmi must take its limit 1, not NaN
 @example(data=(np.array([[1.0], [2.0], [4.0]]), np.zeros((3, 1))), df_complete=None)
 @example(data=(np.array([[1.0], [2.0], [4.0]]), np.zeros((3, 1))), df_complete=10.0)
+# within-draw variance tiny next to the between-draw one: 1 - lambda rounds to 0
+@example(data=(np.array([[148.0], [0.0]]), np.full((2, 1), 1e-12)), df_complete=1.0)
 def test_rubin_variance_decomposition(data, df_complete):
     q, u = data
     res = _quiet(rubin_combine, q, u, df_complete=df_complete)
