@@ -114,8 +114,12 @@ def test_interval_without_data_is_reported_and_weights_follow_scenario():
 
 def test_no_usable_interval_gives_unscored_taxa_with_a_warning():
     study, _ = simulate_study(7, n_taxa=60, n_intervals=1)
-    with pytest.warns(AnalogWarning, match="no warming interval has enough fossil data"):
+    with pytest.warns(AnalogWarning) as record:
         r = run_analog(study, AnalogParams(min_at_risk=10_000, n_bootstrap=0), rng=np.random.default_rng(1))
+    messages = [str(w.message) for w in record]
+    assert any("intervals left out of the selectivity model: W0 (fewer than 10000 taxa at risk" in m
+               for m in messages)
+    assert any("no warming interval has enough fossil data" in m for m in messages)
     assert r.risk["analog_p"].isna().all() and r.risk["note"].str.contains("not scored").all()
     assert np.isnan(r.skill) and r.pooling.empty
     assert "not computable" in r.summary()
