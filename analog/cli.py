@@ -41,6 +41,11 @@ def _parser() -> argparse.ArgumentParser:
         sp.add_argument("--quiet", action="store_true", help="no progress bars; print only the final summary line")
         sp.add_argument("--no-figures", action="store_true", help="skip figures (and the briefing's images)")
         sp.add_argument("--debug", action="store_true", help="show a full traceback on an internal error")
+        sp.add_argument("--engine", choices=("local", "dask"), default=None,
+                        help="where the record-heavy steps run: 'local' (this process, the default) or 'dask' "
+                             "(a local Dask cluster, or the one given by --scheduler); results are identical")
+        sp.add_argument("--scheduler", metavar="ADDRESS", default=None,
+                        help="address of a running Dask scheduler, e.g. tcp://host:8786 (implies --engine dask)")
 
     r = sub.add_parser("run", help="run the whole job on a study",
                        description="Run the whole job on a study folder and write tables, figures, "
@@ -116,16 +121,20 @@ def _print_warnings(caught, study=None):
 
 def _cmd_run(args, study_folder) -> int:
     from .intake import load_study
+    from .engine import get_engine
     from .output import check_output_target
     from .pipeline import run_study, write_outputs
 
     t0 = time.perf_counter()
+    if args.engine == "local" and args.scheduler:
+        raise AnalogError("--scheduler needs --engine dask (or leave --engine out)")
     check_output_target(Path(args.out))
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", AnalogWarning)
         study = load_study(study_folder)
-        with _Progress(args.quiet) as prog:
-            run = run_study(study, progress=prog.factory)
+        with _Progress(args.quiet) as prog, get_engine(args.engine or ("dask" if args.scheduler else "local"),
+                                                       scheduler=args.scheduler) as engine:
+            run = run_study(study, progress=prog.factory, engine=engine)
             target, written = write_outputs(run, args.out, figures=not args.no_figures, progress=prog.factory)
     elapsed = time.perf_counter() - t0
     if not args.quiet:
@@ -136,8 +145,9 @@ def _cmd_run(args, study_folder) -> int:
             print(f"skip  {stage:<11} {why}")
         tables = [w for w in written if w.endswith(".csv")]
         figs = [w for w in written if w.startswith("figures/") and w.endswith(".png")]
-        print(f"wrote {len(tables)} tables, {len(figs)} figures (PNG, with SVG/PDF copies), "
-              f"{'briefing.html, ' if 'briefing.html' in written else ''}manifest.json")
+        pages = sum(w.startswith("regions/") and w.endswith(".html") for w in written)
+        briefing = f"briefing.html (+{pages} region pages), " if "briefing.html" in written else ""
+        print(f"wrote {len(tables)} tables, {len(figs)} figures (PNG, with SVG/PDF copies), {briefing}manifest.json")
     print(f"Done in {elapsed:.1f} s. Output: {target}")
     if "briefing.html" in written and not args.quiet:
         print(f"Open {target / 'briefing.html'} in a browser. {CAUTION}")
