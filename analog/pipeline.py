@@ -74,7 +74,7 @@ def _optional(module: str, name: str):
 
 
 def run_study(study: Study, *, progress: ProgressFactory | None = None,
-              stages: tuple[str, ...] = STAGE_ORDER) -> RunResult:
+              stages: tuple[str, ...] = STAGE_ORDER, engine=None) -> RunResult:
     """Run the evidence stages on a validated study.
 
     Parameters
@@ -86,11 +86,22 @@ def run_study(study: Study, *, progress: ProgressFactory | None = None,
         ``progress(label, done, total)``.
     stages : tuple of str
         Subset of ``('analog', 'trajectory', 'combine', 'regions')``.
+    engine : {'local', 'dask'} or analog.engine.Engine, optional
+        Where the record-scaling work of the trajectory and regions stages runs (default:
+        in this process). A name starts an engine for this run and closes it at the end;
+        an :class:`~analog.engine.Engine` passed in is left open. Results are identical.
 
     Returns
     -------
     RunResult
     """
+    from .engine import engine_scope
+
+    with engine_scope(engine) as eng:
+        return _run_stages(study, progress=progress, stages=stages, engine=eng)
+
+
+def _run_stages(study: Study, *, progress, stages, engine) -> RunResult:
     run = RunResult(study=study, started_at=_dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"))
     rngs = stage_generators(study.config.seed)
     cfg = study.config
@@ -125,7 +136,8 @@ def run_study(study: Study, *, progress: ProgressFactory | None = None,
             run.skipped["trajectory"] = "trajectory stage not available in this build"
         else:
             run.trajectory = timed("trajectory", lambda: fn(study, cfg.params("trajectory"),
-                                                            rng=rngs["trajectory"], progress=cb("trajectory")))
+                                                            rng=rngs["trajectory"], progress=cb("trajectory"),
+                                                            engine=engine))
     if "combine" in stages:
         fn = _optional("analog.combine", "combine_evidence")
         if fn is None:
@@ -143,7 +155,7 @@ def run_study(study: Study, *, progress: ProgressFactory | None = None,
             run.skipped["regions"] = "needs the combined ranking"
         else:
             run.regions = timed("regions", lambda: fn(study, run.combined, cfg.params("regions"),
-                                                      rng=rngs["regions"]))
+                                                      rng=rngs["regions"], engine=engine))
     return run
 
 

@@ -24,7 +24,7 @@ _LINES = {"combined": ("combined_p", "tier", "draws"),
 
 def assess_regions(study, combined_result, params: RegionParams | None = None, *,
                    rng: np.random.Generator | None = None,
-                   progress: Callable[[str, int, int], None] | None = None) -> RegionResult:
+                   progress: Callable[[str, int, int], None] | None = None, engine=None) -> RegionResult:
     """Assign modern occurrences to regions and summarise each region's expected losses.
 
     Parameters
@@ -39,6 +39,8 @@ def assess_regions(study, combined_result, params: RegionParams | None = None, *
         Accepted for the common stage signature; this stage draws no random numbers.
     progress : callable, optional
         ``progress(label, done, total)``.
+    engine : {'local', 'dask'} or analog.engine.Engine, optional
+        Where the spatial assignment runs (default: in this process); results are identical.
 
     Returns
     -------
@@ -73,7 +75,7 @@ def assess_regions(study, combined_result, params: RegionParams | None = None, *
     ea = equal_area_crs(regions, projection=params.projection)
 
     pos = assign_points(occ["decimalLongitude"].to_numpy(dtype=float), occ["decimalLatitude"].to_numpy(dtype=float),
-                        regions, engine=params.engine, chunk_size=params.chunk_size)
+                        regions, engine=engine)
     if progress:
         progress("regions", 1, 3)
     inside = pos >= 0
@@ -84,9 +86,8 @@ def assess_regions(study, combined_result, params: RegionParams | None = None, *
         notes.append(f"{len(unassigned)} of {len(occ)} modern occurrences fall in no region; they are listed "
                      "in unassigned_occurrences.csv and left out of the region indices")
 
-    records = pd.DataFrame({"region_id": region_ids[pos[inside]],
-                            "taxon_id": occ.loc[inside, "taxon_id"].astype(str).to_numpy()})
-    presence = records.groupby(["region_id", "taxon_id"], sort=True).size().rename("n_records").reset_index()
+    records = _region_records(pos, occ["taxon_id"], region_ids)
+    presence = records[["region_id", "taxon_id", "n_records"]].copy()
     presence["present"] = presence["n_records"] >= params.min_records
     rk = combined_result.rankings.set_index("taxon_id")
     presence = presence.join(rk[["scientificName", "combined_p", "tier"]], on="taxon_id")
@@ -120,7 +121,8 @@ def _indices(regions, presence, records, combined_result, study, params, notes) 
     extra = present.loc[~known].groupby("region_id").size()  # present but not in the rankings at all
 
     out = pd.DataFrame({"region_id": rid, "name": regions["name"].astype(str).to_numpy()})
-    out["n_records"] = records.groupby("region_id").size().reindex(rid, fill_value=0).to_numpy()
+    out["n_records"] = np.bincount(records["region_pos"].to_numpy(), weights=records["n_records"].to_numpy(),
+                                   minlength=len(rid)).astype(np.int64)
     alpha = (1.0 - params.interval) / 2.0
     top_tiers = set(TIER_NAMES[:TIER_NAMES.index(params.top_tier) + 1])
     for line, (pcol, tcol, dattr) in _LINES.items():
@@ -165,6 +167,39 @@ def _indices(regions, presence, records, combined_result, study, params, notes) 
     out["flag_reason"] = ["; ".join(s for s in pair if s) for pair in zip(reason, reason2)]
     rest = [c for c in out.columns if c not in SUMMARY_COLUMNS]
     return out[SUMMARY_COLUMNS + rest]
+
+
+def _region_records(pos: np.ndarray, taxon_id: pd.Series, region_ids: np.ndarray) -> pd.DataFrame:
+    """Records per (region, taxon) among assigned occurrences, sorted by region_id then taxon_id.
+
+    Counted on integer codes (one ``np.unique`` over region x taxon keys) rather than by
+    grouping millions of strings; the order is the string order of both ids.
+    """
+    codes, uniques = pd.factorize(taxon_id)
+    taxa = np.asarray(pd.Index(uniques).astype(str), dtype=object)
+    order = np.argsort(taxa, kind="stable")
+    t_rank = np.empty(len(taxa), dtype=np.int64)
+    t_rank[order] = np.arange(len(taxa))
+    taxa = taxa[order]
+    inside = (pos >= 0) & (codes >= 0)
+    tcode = t_rank[codes[inside]]
+    # region positions re-coded in region_id string order, so sorting keys sorts both ids
+    r_rank = np.empty(len(region_ids), dtype=np.int64)
+    r_rank[np.argsort(region_ids, kind="stable")] = np.arange(len(region_ids))
+    r_of_rank = np.argsort(r_rank)
+    n_t = max(len(taxa), 1)
+    key = r_rank[pos[inside]] * n_t + tcode
+    space = len(region_ids) * n_t
+    if space <= min(max(4 * len(key), 1 << 20), 1 << 26):   # dense counts: linear time
+        counts = np.bincount(key, minlength=space)
+        keys = np.flatnonzero(counts)
+        counts = counts[keys]
+    else:
+        keys, counts = np.unique(key, return_counts=True)
+    rpos = r_of_rank[keys // n_t]
+    return pd.DataFrame({"region_id": pd.array(region_ids[rpos], dtype="str"),
+                         "taxon_id": pd.array(taxa[keys % n_t], dtype="str"),
+                         "n_records": counts.astype(np.int64), "region_pos": rpos})
 
 
 def _q(summed: np.ndarray, q: float) -> np.ndarray:

@@ -32,11 +32,6 @@ class RegionParams(Params):
     projection: str = field(default="auto", metadata={
         "doc": "Equal-area CRS for areas and maps: 'auto' = Lambert azimuthal equal-area centred on the "
                "centre of the regions' extent; otherwise any CRS string pyproj reads (e.g. 'EPSG:3035')."})
-    engine: str = field(default="local", metadata={
-        "choices": ("local", "dask"),
-        "doc": "Spatial assignment in this process, or in chunks with Dask (identical results)."})
-    chunk_size: int = field(default=200000, metadata={
-        "min": 1000, "max": 100000000, "doc": "Points per chunk when engine='dask'."})
 
 
 PARAMS = RegionParams

@@ -141,7 +141,7 @@ def _ends_in_interval(occurrences: pd.DataFrame, intervals: pd.DataFrame, taxon_
 
 
 def run_trajectory(study, params: TrajectoryParams | None = None, *, rng: np.random.Generator,
-                   progress=None) -> TrajectoryResult:
+                   progress=None, engine=None) -> TrajectoryResult:
     """Run the trajectory stage on a validated study.
 
     Parameters
@@ -153,6 +153,9 @@ def run_trajectory(study, params: TrajectoryParams | None = None, *, rng: np.ran
         The stage's random stream (age draws, subsampling, bootstrap, null, hindcast).
     progress : callable, optional
         ``progress(label, done, total)``.
+    engine : {'local', 'dask'} or analog.engine.Engine, optional
+        Where the age draws, bootstrap replicates and hindcast resamples run (default: in
+        this process). Every engine gives the same numbers for the same ``rng``.
 
     Returns
     -------
@@ -179,6 +182,13 @@ def run_trajectory(study, params: TrajectoryParams | None = None, *, rng: np.ran
 
     Hurvich, C. M. & Tsai, C.-L. (1989). Biometrika 76, 297-307.
     """
+    from ..engine import engine_scope
+
+    with engine_scope(engine) as eng:
+        return _run(study, params, rng=rng, progress=progress, engine=eng)
+
+
+def _run(study, params, *, rng, progress, engine) -> TrajectoryResult:
     import warnings
 
     p = params if params is not None else PARAMS()
@@ -197,13 +207,13 @@ def run_trajectory(study, params: TrajectoryParams | None = None, *, rng: np.ran
     occ = build_occupancy(study.fossil_occurrences, study.taxa, units=p.units, cell_km=p.cell_km, bins=p.bins,
                           bin_width_ma=p.bin_width_ma, age_handling=p.age_handling, age_draws=p.age_draws,
                           quota=p.quota, subsample_reps=p.subsample_reps, min_sampled=p.min_sampled,
-                          timescale=timescale, rng=r_occ)
+                          timescale=timescale, rng=r_occ, engine=engine)
     table = occ.table
     table["bin_mid_ma"] = (table["bin_oldest_ma"] + table["bin_youngest_ma"]) / 2.0
     step_myr = occ.step_myr
     for row in occ.dropped.itertuples():
         warnings.warn(f"trajectory: {row.count} fossil occurrences left out of the occupancy series "
-                      f"({row.reason})", AnalogWarning, stacklevel=2)
+                      f"({row.reason})", AnalogWarning, stacklevel=3)
 
     step("model fits", 1)
     taxa = study.taxa.assign(taxon_id=study.taxa["taxon_id"].astype(str))
@@ -223,7 +233,7 @@ def run_trajectory(study, params: TrajectoryParams | None = None, *, rng: np.ran
     avg = averaged_probability(probs, ext_fits.weights)
     draws = bootstrap_probabilities(ext_fits, threshold=thr, horizon_bins=p.horizon_bins, step_myr=step_myr,
                                     n_boot=p.n_bootstrap, rng=r_boot, min_series_bins=p.min_series_bins,
-                                    progress=progress)
+                                    progress=progress, engine=engine)
     risk, risk_draws = _risk_table(taxa, table, batch, fitset, labels, ext_idx, probs, avg, draws, p, step_myr)
 
     step("noise null", 3)
@@ -236,7 +246,7 @@ def run_trajectory(study, params: TrajectoryParams | None = None, *, rng: np.ran
     step("hindcast", 4)
     hind, cases = run_hindcast(table, extant, models=p.models, lead_bins=p.hindcast_lead_bins,
                                min_series_bins=p.min_series_bins, threshold=thr, step_myr=step_myr,
-                               n_boot=p.n_skill_boot, level=p.interval_level, rng=r_hind)
+                               n_boot=p.n_skill_boot, level=p.interval_level, rng=r_hind, engine=engine)
     avg_row = hind.loc[hind["model"] == "model_average", "auc"]
     skill = float(avg_row.iloc[0]) if len(avg_row) and pd.notna(avg_row.iloc[0]) else float("nan")
     step("done", 5)

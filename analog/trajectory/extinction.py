@@ -82,7 +82,7 @@ def averaged_probability(probs: np.ndarray, weights: np.ndarray) -> np.ndarray:
 
 def bootstrap_probabilities(fitset: FitSet, *, threshold: float, horizon_bins: int, step_myr: float,
                             n_boot: int, rng: np.random.Generator, min_series_bins: int = 5,
-                            progress=None) -> np.ndarray:
+                            progress=None, engine=None) -> np.ndarray:
     """Parametric-bootstrap draws of the model-averaged probability.
 
     Parameters
@@ -97,6 +97,8 @@ def bootstrap_probabilities(fitset: FitSet, *, threshold: float, horizon_bins: i
     min_series_bins : int, default=5
     progress : callable, optional
         ``progress(label, done, total)``.
+    engine : {'local', 'dask'} or analog.engine.Engine, optional
+        Where the chunks of replicates run (default: in this process); results are identical.
 
     Returns
     -------
@@ -110,37 +112,56 @@ def bootstrap_probabilities(fitset: FitSet, *, threshold: float, horizon_bins: i
     from the observed first value), refits every model, and evaluates the averaged
     probability at the *observed* current value, so the draws reflect uncertainty in
     the parameters and in the choice of model, not the future path itself.
+
+    Replicates are cut into chunks of about 100,000 simulated series; each chunk has its
+    own random stream spawned from ``rng``. The chunks depend only on the number of series
+    and of replicates, so the draws are the same on every engine.
     """
+    from ..engine import engine_scope, split_counts
+
     batch = fitset.batch
     n = len(batch)
     out = np.full((n, n_boot), np.nan)
     if n == 0 or n_boot == 0:
         return out
-    current = batch.last(batch.y)
     per_chunk = max(1, _ROWS_PER_CHUNK // n)
-    w = fitset.weights
-    cum = np.cumsum(w, axis=1)
-    done = 0
-    while done < n_boot:
-        b = min(per_chunk, n_boot - done)
-        rows = np.tile(np.arange(n), b)
-        big = batch.take(rows)
-        u = rng.random(len(rows))
-        choice = (u[:, None] > cum[rows]).sum(axis=1)            # generating model index
-        choice = np.minimum(choice, len(fitset.models) - 1)
-        y = np.full(big.y.shape, np.nan)
-        for j, m in enumerate(fitset.models):
-            pick = choice == j
-            if pick.any():
-                sel = np.flatnonzero(pick)
-                y[sel] = simulate(m, fitset.fits[m].take(rows[sel]), big.take(sel), rng)
-        refit = fit_models(big.with_y(y), models=fitset.models, min_series_bins=min_series_bins)
-        probs = model_probabilities(refit, threshold=threshold, horizon_bins=horizon_bins, step_myr=step_myr,
-                                    current=current[rows])
-        avg = averaged_probability(probs, refit.weights).reshape(b, n).T
-        out[:, done:done + b] = avg
-        done += b
+    spans = split_counts(n_boot, per_chunk)
+    chunks = list(zip(spans, rng.spawn(len(spans))))
+    shared = (fitset, threshold, horizon_bins, step_myr, min_series_bins)
+
+    def tick(done, total):
         if progress is not None:
-            progress("bootstrap", done, n_boot)
-    out[w.sum(axis=1) <= 0] = np.nan
+            progress("bootstrap", min(done * per_chunk, n_boot), n_boot)
+
+    with engine_scope(engine) as eng:
+        parts = eng.map(_bootstrap_chunk, chunks, shared=shared, progress=tick)
+    for (start, stop), avg in zip(spans, parts):
+        out[:, start:stop] = avg
+    out[fitset.weights.sum(axis=1) <= 0] = np.nan
     return out
+
+
+def _bootstrap_chunk(chunk, shared) -> np.ndarray:
+    """Averaged probabilities of one chunk of replicates, shape (N, replicates)."""
+    (start, stop), rng = chunk
+    fitset, threshold, horizon_bins, step_myr, min_series_bins = shared
+    batch = fitset.batch
+    n = len(batch)
+    b = stop - start
+    current = batch.last(batch.y)
+    cum = np.cumsum(fitset.weights, axis=1)
+    rows = np.tile(np.arange(n), b)
+    big = batch.take(rows)
+    u = rng.random(len(rows))
+    choice = (u[:, None] > cum[rows]).sum(axis=1)            # generating model index
+    choice = np.minimum(choice, len(fitset.models) - 1)
+    y = np.full(big.y.shape, np.nan)
+    for j, m in enumerate(fitset.models):
+        pick = choice == j
+        if pick.any():
+            sel = np.flatnonzero(pick)
+            y[sel] = simulate(m, fitset.fits[m].take(rows[sel]), big.take(sel), rng)
+    refit = fit_models(big.with_y(y), models=fitset.models, min_series_bins=min_series_bins)
+    probs = model_probabilities(refit, threshold=threshold, horizon_bins=horizon_bins, step_myr=step_myr,
+                                current=current[rows])
+    return averaged_probability(probs, refit.weights).reshape(b, n).T

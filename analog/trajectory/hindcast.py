@@ -82,7 +82,7 @@ def hindcast_cases(series: pd.DataFrame, extant: pd.Series, *, lead_bins: int, m
 
 def run_hindcast(series: pd.DataFrame, extant: pd.Series, *, models, lead_bins: int, min_series_bins: int,
                  threshold: float, step_myr: float, n_boot: int, level: float = 0.95,
-                 rng: np.random.Generator):
+                 rng: np.random.Generator, engine=None):
     """Score truncated series of known fate with each model; AUC and Brier per model.
 
     Parameters
@@ -104,6 +104,9 @@ def run_hindcast(series: pd.DataFrame, extant: pd.Series, *, models, lead_bins: 
     level : float, default=0.95
         Coverage of the intervals.
     rng : numpy.random.Generator
+    engine : {'local', 'dask'} or analog.engine.Engine, optional
+        Where the bootstrap of each score runs (default: in this process); results are
+        identical.
 
     Returns
     -------
@@ -120,12 +123,17 @@ def run_hindcast(series: pd.DataFrame, extant: pd.Series, *, models, lead_bins: 
     below the threshold within ``lead_bins + 1`` bins; the outcome is observed loss
     within that window, so the Brier score also reflects how well the threshold stands
     for loss.
+
+    The cut points are drawn from the first of two streams spawned from ``rng``; each
+    score's bootstrap has its own stream spawned from the second, so the scores can be
+    resampled in parallel with the same result.
     """
-    from ..stats import bootstrap_skill
+    from ..engine import engine_scope
 
     models = tuple(models)
     need = max(min_series_bins, max(MODEL_K[m] for m in models) + 3)
-    cases = hindcast_cases(series, extant, lead_bins=lead_bins, min_bins=need, rng=rng)
+    r_cases, r_skill = rng.spawn(2)
+    cases = hindcast_cases(series, extant, lead_bins=lead_bins, min_bins=need, rng=r_cases)
     horizon = lead_bins + 1
     score_cols = list(models) + ["model_average", BASELINE]
     if len(cases):
@@ -147,15 +155,14 @@ def run_hindcast(series: pd.DataFrame, extant: pd.Series, *, models, lead_bins: 
             cases[c] = pd.Series(dtype=float)
 
     y = cases["lost"].to_numpy(int)
+    scores = cases[score_cols].to_numpy(float).T if len(score_cols) else np.zeros((0, len(cases)))
+    chunks = list(zip(range(len(score_cols)), r_skill.spawn(len(score_cols))))
+    with engine_scope(engine) as eng:
+        skills = eng.map(_skill_chunk, chunks, shared=(y, scores, n_boot, 1.0 - level))
     out = []
-    for col in score_cols:
-        score = cases[col].to_numpy(float)
-        ok = ~np.isnan(score)
-        yy, ss = y[ok], score[ok]
-        n_lost, n_surv = int(yy.sum()), int((1 - yy).sum())
+    for col, (n_lost, n_surv, skill) in zip(score_cols, skills):
         row = {"model": col, "n_lost": n_lost, "n_survived": n_surv}
-        if n_lost and n_surv:
-            skill = bootstrap_skill(yy, ss, n_boot=n_boot, rng=rng, alpha=1.0 - level)
+        if skill is not None:
             row.update({k: float(v) for k, v in skill.items() if k in HINDCAST_COLUMNS})
             if col == BASELINE:  # a ranking score, not a probability
                 row.update({"brier": np.nan, "brier_low": np.nan, "brier_high": np.nan})
@@ -173,3 +180,18 @@ def run_hindcast(series: pd.DataFrame, extant: pd.Series, *, models, lead_bins: 
     table.loc[table["model"] == BASELINE, "what_is_scored"] = (
         "negative logit occupancy at the cut (a ranking score, not a probability: no Brier score)")
     return table[HINDCAST_COLUMNS], cases
+
+
+def _skill_chunk(chunk, shared):
+    """AUC and Brier score with bootstrap intervals for one score column."""
+    from ..stats import bootstrap_skill
+
+    j, rng = chunk
+    y, scores, n_boot, alpha = shared
+    score = scores[j]
+    ok = ~np.isnan(score)
+    yy, ss = y[ok], score[ok]
+    n_lost, n_surv = int(yy.sum()), int((1 - yy).sum())
+    if not (n_lost and n_surv):
+        return n_lost, n_surv, None
+    return n_lost, n_surv, bootstrap_skill(yy, ss, n_boot=n_boot, rng=rng, alpha=alpha)

@@ -143,12 +143,19 @@ def sampling_units(occurrences: pd.DataFrame, *, units: str = "grid", cell_km: f
 
     lat = occurrences["decimalLatitude"].to_numpy(float)
     lon = occurrences["decimalLongitude"].to_numpy(float)
+    # localities repeat many times: project each distinct coordinate pair once
+    ok = np.isfinite(lat) & np.isfinite(lon)
+    where, pairs = pd.factorize(lon[ok] + 1j * lat[ok], sort=False)
+    pairs = np.asarray(pairs)
     tr = Transformer.from_crs("EPSG:4326", EQUAL_AREA_CRS, always_xy=True)
-    x, y = tr.transform(lon, lat)
+    px, py = tr.transform(pairs.real, pairs.imag)
+    x = np.full(len(lat), np.nan)
+    y = np.full(len(lat), np.nan)
+    x[ok], y[ok] = np.asarray(px, dtype=float)[where], np.asarray(py, dtype=float)[where]
     size = float(cell_km) * 1000.0
-    ix = np.floor(np.asarray(x) / size).astype(np.int64)
-    iy = np.floor(np.asarray(y) / size).astype(np.int64)
     ok = np.isfinite(x) & np.isfinite(y)
+    ix = np.floor(np.where(ok, x, 0.0) / size).astype(np.int64)
+    iy = np.floor(np.where(ok, y, 0.0) / size).astype(np.int64)
     key = np.where(ok, (ix - ix[ok].min(initial=0)) * 10_000_000 + (iy - iy[ok].min(initial=0)), -1)
     codes = np.full(len(key), -1, dtype=np.int64)
     codes[ok] = pd.factorize(key[ok])[0]
@@ -171,25 +178,39 @@ def _bin_of_range(edges: np.ndarray, young: np.ndarray, old: np.ndarray) -> np.n
     return np.where((jy == jo) & (jy >= 0) & (old <= edges[-1] + _TOL), jy, -1)
 
 
-def _count(taxon: np.ndarray, bin_: np.ndarray, unit: np.ndarray, n_taxa: int, n_bins: int,
-           n_units: int, *, quota: int, reps: int, rng) -> tuple[np.ndarray, np.ndarray]:
-    """Occupied (n_taxa, n_bins) and sampled (n_bins,) for one set of bin assignments.
+class _Codes:
+    """Integer keys of (taxon, bin, unit) and (bin, unit) combinations."""
+
+    def __init__(self, n_taxa: int, n_bins: int, n_units: int):
+        self.n_taxa, self.n_bins, self.n_units = n_taxa, n_bins, n_units
+        self.span = n_bins * n_units
+        self.fits = n_taxa * self.span < 2 ** 62  # else: pairs de-duplicated through a frame
+
+    def pairs(self, taxon, bin_, unit) -> tuple[np.ndarray, np.ndarray]:
+        """Sorted distinct ``(taxon, bin, unit)`` keys and sorted distinct ``(bin, unit)`` keys."""
+        keep = (bin_ >= 0) & (unit >= 0) & (taxon >= 0)
+        bu = bin_[keep] * self.n_units + unit[keep]
+        if self.fits:
+            tbu = np.unique(taxon[keep] * self.span + bu)
+        else:  # very large code space
+            tbu = pd.DataFrame({"t": taxon[keep], "bu": bu}).drop_duplicates().to_numpy()
+        return tbu, np.unique(bu)
+
+    def split(self, tbu):
+        if self.fits:
+            return tbu // self.span, tbu % self.span
+        return tbu[:, 0], tbu[:, 1]
+
+
+def _tally(codes: _Codes, tbu, bu_unique, *, quota: int, reps: int, rng) -> tuple[np.ndarray, np.ndarray]:
+    """Occupied (n_taxa, n_bins) and sampled (n_bins,) from distinct keys.
 
     With ``quota > 0`` each bin's sampled units are subsampled to ``quota`` (without
     replacement) ``reps`` times and the counts averaged.
     """
-    keep = (bin_ >= 0) & (unit >= 0)
-    b, u, t = bin_[keep], unit[keep], taxon[keep]
-    bu = b * n_units + u
-    bu_unique = np.unique(bu)
+    n_taxa, n_bins, n_units = codes.n_taxa, codes.n_bins, codes.n_units
     sampled = np.bincount(bu_unique // n_units, minlength=n_bins).astype(float)
-    span = n_bins * n_units
-    if n_taxa * span < 2 ** 62:
-        tbu = np.unique(t * span + bu)
-        t_of, bu_of = tbu // span, tbu % span
-    else:  # very large code space: fall back to a frame de-duplication
-        pairs = pd.DataFrame({"t": t, "bu": bu}).drop_duplicates()
-        t_of, bu_of = pairs["t"].to_numpy(), pairs["bu"].to_numpy()
+    t_of, bu_of = codes.split(tbu)
     cell = t_of * n_bins + bu_of // n_units
     if quota <= 0:
         occupied = np.bincount(cell, minlength=n_taxa * n_bins).astype(float)
@@ -207,11 +228,60 @@ def _count(taxon: np.ndarray, bin_: np.ndarray, unit: np.ndarray, n_taxa: int, n
     return (occupied / reps).reshape(n_taxa, n_bins), np.minimum(sampled, quota)
 
 
+def _count(taxon, bin_, unit, codes: _Codes, *, quota: int, reps: int, rng):
+    """Occupied and sampled counts for one set of bin assignments."""
+    tbu, bu = codes.pairs(taxon, bin_, unit)
+    return _tally(codes, tbu, bu, quota=quota, reps=reps, rng=rng)
+
+
+def _merge_sorted(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Sorted union of two sorted arrays of distinct keys (``b`` may repeat keys of ``a``)."""
+    if not len(a):
+        return b
+    b = b[~_isin_sorted(b, a)]
+    return np.insert(a, np.searchsorted(a, b), b)
+
+
+def _isin_sorted(x: np.ndarray, sorted_keys: np.ndarray) -> np.ndarray:
+    if not len(sorted_keys):
+        return np.zeros(len(x), dtype=bool)
+    pos = np.minimum(np.searchsorted(sorted_keys, x), len(sorted_keys) - 1)
+    return sorted_keys[pos] == x
+
+
+# Age draws counted per chunk of work. Fixed (not tied to the engine), so the chunks, their
+# random streams and the order in which their counts are summed are the same on every engine.
+_DRAWS_PER_CHUNK = 5
+
+
+def _draw_chunk(generators, shared) -> tuple[np.ndarray, np.ndarray]:
+    """Summed occupied / sampled counts of the age draws of one chunk.
+
+    Only occurrences whose age range spans more than one bin are redrawn; the keys of the
+    others (``fixed_tbu``, ``fixed_bu``) are the same in every draw and are merged in.
+    """
+    codes, edges, young, width, taxon, unit, fixed_tbu, fixed_bu, quota, reps = shared
+    occupied = np.zeros((codes.n_taxa, codes.n_bins))
+    sampled = np.zeros(codes.n_bins)
+    for rng in generators:
+        age = young + rng.random(len(young)) * width
+        b = _bin_of_point(edges, age)
+        tbu, bu = codes.pairs(taxon, b, unit)
+        if quota <= 0:  # counts of the fixed keys are added once by the caller
+            tbu, bu = tbu[~_isin_sorted(tbu, fixed_tbu)], bu[~_isin_sorted(bu, fixed_bu)]
+        else:           # subsampling needs each bin's full set of units
+            tbu, bu = _merge_sorted(fixed_tbu, tbu), _merge_sorted(fixed_bu, bu)
+        o, s = _tally(codes, tbu, bu, quota=quota, reps=reps, rng=rng)
+        occupied += o
+        sampled += s
+    return occupied, sampled
+
+
 def build_occupancy(occurrences: pd.DataFrame, taxa: pd.DataFrame, *, units: str = "grid",
                     cell_km: float = 100.0, bins: str = "fixed", bin_width_ma: float = 10.0,
                     age_handling: str = "monte_carlo", age_draws: int = 20, quota: int = 0,
                     subsample_reps: int = 20, min_sampled: int = 5,
-                    timescale: pd.DataFrame | None = None, rng=None) -> OccupancyTable:
+                    timescale: pd.DataFrame | None = None, rng=None, engine=None) -> OccupancyTable:
     """Occupancy per taxon and time bin (Foote et al. 2007; Liow & Stenseth 2007).
 
     Parameters
@@ -239,6 +309,8 @@ def build_occupancy(occurrences: pd.DataFrame, taxa: pd.DataFrame, *, units: str
         Needed for ``bins='stages'``.
     rng : numpy.random.Generator, optional
         Needed for age draws and subsampling.
+    engine : {'local', 'dask'} or analog.engine.Engine, optional
+        Where the age draws are counted (default: in this process); results are identical.
 
     Returns
     -------
@@ -253,6 +325,12 @@ def build_occupancy(occurrences: pd.DataFrame, taxa: pd.DataFrame, *, units: str
     denominator, which evens the weight the logit transform and the models give to
     bins of very different sampling. Coordinates are used as given (no plate
     rotation), so grid cells are present-day cells.
+
+    With 'monte_carlo', every age draw has its own random stream, spawned from ``rng``
+    (``Generator.spawn``), and the draws are counted in fixed chunks of five, so the counts
+    do not depend on where the chunks run. Occurrences whose whole age range lies in one bin
+    fall in that bin in every draw; their keys are counted once and only the others are
+    redrawn.
 
     References
     ----------
@@ -280,6 +358,7 @@ def build_occupancy(occurrences: pd.DataFrame, taxa: pd.DataFrame, *, units: str
     n_bins = len(bin_df)
     unit = sampling_units(occ, units=units, cell_km=cell_km)
     n_units = int(unit.max()) + 1 if len(unit) and unit.max() >= 0 else 1
+    codes = _Codes(n_taxa, n_bins, n_units)
 
     dropped = []
     if (unit < 0).any():
@@ -297,22 +376,12 @@ def build_occupancy(occurrences: pd.DataFrame, taxa: pd.DataFrame, *, units: str
         straddle = (b < 0) & (unit >= 0)
         if straddle.any():
             dropped.append(("age range spans more than one bin (single_bin)", int(straddle.sum())))
-        occupied, sampled = _count(tcode, b, unit, n_taxa, n_bins, n_units,
-                                   quota=quota, reps=subsample_reps, rng=rng)
+        occupied, sampled = _count(tcode, b, unit, codes, quota=quota, reps=subsample_reps, rng=rng)
         age_text = (f"occurrences whose age range fits in one bin only "
                     f"({int(straddle.sum())} of {len(occ)} spanning two or more bins left out)")
     else:
-        occupied = np.zeros((n_taxa, n_bins))
-        sampled = np.zeros(n_bins)
-        width = old - young
-        for _ in range(age_draws):
-            age = young + rng.random(len(young)) * width
-            b = _bin_of_point(edges, age)
-            o, s = _count(tcode, b, unit, n_taxa, n_bins, n_units, quota=quota, reps=subsample_reps, rng=rng)
-            occupied += o
-            sampled += s
-        occupied /= age_draws
-        sampled /= age_draws
+        occupied, sampled = _monte_carlo(codes, edges, young, old, tcode, unit, age_draws=age_draws, quota=quota,
+                                         reps=subsample_reps, rng=rng, engine=engine)
         age_text = f"point ages drawn uniformly within each age range, counts averaged over {age_draws} draws"
 
     unit_text = (f"equal-area grid cells of {cell_km:g} km ({EQUAL_AREA_CRS})" if units == "grid"
@@ -330,6 +399,35 @@ def build_occupancy(occurrences: pd.DataFrame, taxa: pd.DataFrame, *, units: str
     table = _series_rows(occupied, sampled, bin_df, taxon_ids, taxa["extant"].to_numpy(bool), min_sampled)
     drop_df = pd.DataFrame(dropped, columns=["reason", "count"])
     return OccupancyTable(table=table, bins=bin_df, dropped=drop_df, method=method, step_myr=step)
+
+
+def _monte_carlo(codes: _Codes, edges, young, old, tcode, unit, *, age_draws: int, quota: int, reps: int,
+                 rng, engine) -> tuple[np.ndarray, np.ndarray]:
+    """Occupied and sampled counts averaged over ``age_draws`` uniform point-age draws."""
+    from ..engine import engine_scope, split_counts
+
+    use = (tcode >= 0) & (unit >= 0)
+    lo, hi = _bin_of_point(edges, young), _bin_of_point(edges, old)
+    fixed = use & (lo == hi) & (lo >= 0) & codes.fits   # every point age in the range has this bin
+    redraw = use & ~fixed
+    fixed_tbu, fixed_bu = codes.pairs(tcode[fixed], lo[fixed], unit[fixed])
+    width = old - young
+    generators = rng.spawn(age_draws)
+    chunks = [generators[s:e] for s, e in split_counts(age_draws, _DRAWS_PER_CHUNK)]
+    shared = (codes, edges, young[redraw], width[redraw], tcode[redraw], unit[redraw], fixed_tbu, fixed_bu,
+              quota, reps)
+    with engine_scope(engine) as eng:
+        parts = eng.map(_draw_chunk, chunks, shared=shared)
+    occupied = np.zeros((codes.n_taxa, codes.n_bins))
+    sampled = np.zeros(codes.n_bins)
+    for o, s in parts:  # always summed in chunk order
+        occupied += o
+        sampled += s
+    if quota <= 0:
+        o, s = _tally(codes, fixed_tbu, fixed_bu, quota=0, reps=1, rng=None)
+        occupied += age_draws * o
+        sampled += age_draws * s
+    return occupied / age_draws, sampled / age_draws
 
 
 def _series_rows(occupied, sampled, bin_df, taxon_ids, extant, min_sampled) -> pd.DataFrame:
