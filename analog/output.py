@@ -40,7 +40,7 @@ def check_output_target(out: Path) -> None:
         problems.append(Problem(str(out), "a folder that already holds other files", "an empty folder, a new path, "
                                 "or an earlier analog output folder (it has manifest.json)",
                                 "choose a new --out path; analog replaces only its own earlier output"))
-    parent = out.parent if not out.exists() else out
+    parent = out if out.is_dir() else out.parent
     while not parent.exists():
         parent = parent.parent
     if not os.access(parent, os.W_OK | os.X_OK):

@@ -4,6 +4,7 @@ from __future__ import annotations
 import datetime as _dt
 import importlib
 import json
+import re
 import tomllib
 from pathlib import Path
 
@@ -93,11 +94,34 @@ def _schema_problems(raw: dict, schema: dict, findings: Findings):
             close = close_names(str(err.instance), [str(a) for a in allowed])
             findings.add(STUDY_FILE, show(err.instance), f"one of {allowed}",
                          f"did you mean '{close[0]}'?" if close else f"use one of {allowed}", column=where)
+        elif kind in _BOUND_WORDS:
+            findings.add(STUDY_FILE, repr(err.instance), f"a number {_bounds(err.schema)}",
+                         f"set {where} within that range", column=where)
+        elif kind == "minLength":
+            findings.add(STUDY_FILE, "an empty text" if err.instance == "" else show(err.instance),
+                         f"a text of at least {err.validator_value} character(s)", f"fill in {where}", column=where)
+        elif kind == "minItems":
+            findings.add(STUDY_FILE, f"a list of {len(err.instance)} item(s)",
+                         f"a list of at least {err.validator_value} items", f"add items to {where}", column=where)
+        elif kind == "uniqueItems":
+            seen, twice = set(), []
+            for item in err.instance:
+                (twice.append(item) if item in seen else seen.add(item))
+            findings.add(STUDY_FILE, f"{', '.join(show(x) for x in twice)} listed twice", "each item once",
+                         f"remove the repeated items from {where}", column=where)
         elif kind == "format":
             findings.add(STUDY_FILE, show(err.instance), f"a {err.validator_value} (YYYY-MM-DD)",
                          f"write {where} as an ISO date, e.g. 2026-11-01", column=where)
         else:
             findings.add(STUDY_FILE, show(err.instance), err.message, f"correct {where}", column=where)
+
+
+_BOUND_WORDS = {"minimum": "at least", "exclusiveMinimum": "greater than", "maximum": "at most",
+                "exclusiveMaximum": "less than"}
+
+
+def _bounds(schema: dict) -> str:
+    return " and ".join(f"{words} {schema[key]:g}" for key, words in _BOUND_WORDS.items() if key in schema)
 
 
 def _resolve(folder: Path, text: str) -> Path:
@@ -135,8 +159,10 @@ def read_config(folder, findings: Findings) -> tuple[StudyConfig, dict]:
         findings.add(STUDY_FILE, f"bytes that are not UTF-8 ({exc})", "UTF-8 text", "save study.toml as UTF-8")
         raise InputError(list(findings.problems)) from None
     except tomllib.TOMLDecodeError as exc:
+        line = re.search(r"at line (\d+)", str(exc))
         findings.add(STUDY_FILE, f"a TOML syntax error: {exc}", "valid TOML",
-                     "fix the line named (text values need double quotes; one [section] header each)")
+                     "fix the line named (text values need double quotes; one [section] header each)",
+                     row=int(line.group(1)) if line else None)
         raise InputError(list(findings.problems)) from None
     raw = _plain(raw)
     _schema_problems(raw, study_schema(), findings)

@@ -19,10 +19,7 @@ def inventory(study) -> str:
         coverage, one line per input file (rows and the first 12 hex digits of
         its sha256), one line per kind of record left out, and the warnings.
     """
-    lines = [study.summary()]
-    crs = study.regions.crs
-    if crs is not None and not crs.equals("EPSG:4326"):
-        lines.append(f"  region layer CRS kept as given: {crs.to_string()} (occurrences are WGS84)")
+    lines = [study.summary()]  # a region layer in another CRS than WGS84 is named in the warnings
     if study.files:
         lines.append("Input files:")
         for f in study.files:

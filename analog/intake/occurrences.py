@@ -126,6 +126,15 @@ def link_taxa(typed: pd.DataFrame, taxa: pd.DataFrame, schema: TableSchema, file
     return out, drop
 
 
+def _has_group(schema: TableSchema, columns, name: str) -> bool:
+    """Whether one option of the schema's column alternative ``name`` is present."""
+    present = set(columns)
+    for alt in schema.alternatives:
+        if alt["name"] == name:
+            return any(all(c in present for c in opt) for opt in alt["options"])
+    return True
+
+
 def _num(value) -> str:
     return "blank" if pd.isna(value) else f"{value:g}"
 
@@ -188,7 +197,9 @@ def check_fossils(df: pd.DataFrame, columns, schema: TableSchema, taxa: pd.DataF
             unreadable |= clean_text(df[c], schema.missing_values).notna().to_numpy() & typed[c].isna().to_numpy()
     old, young, stage_bad = _stage_ages(typed, schema, rows, file, findings)
     schema.rule("age_present")
-    no_age = (old.isna() | young.isna()).to_numpy() & ~unreadable & ~stage_bad
+    # without the age columns every row would repeat the one missing-column problem
+    has_age = _has_group(schema, columns, "age")
+    no_age = (old.isna() | young.isna()).to_numpy() & ~unreadable & ~stage_bad & has_age
     if no_age.any():
         found = [f"oldest_ma {_num(o)}, youngest_ma {_num(y)}, no stage name"
                  for o, y in zip(old[no_age].head(20), young[no_age].head(20))]
@@ -205,7 +216,7 @@ def check_fossils(df: pd.DataFrame, columns, schema: TableSchema, taxa: pd.DataF
                       "oldest_ma >= youngest_ma (ages in Ma count back from today)",
                       "swap the two ages (or the two stage names) in these rows")
     typed["oldest_ma"], typed["youngest_ma"] = old, young
-    if taxa is not None:
+    if taxa is not None and _has_group(schema, columns, "taxon reference"):
         typed["taxon_id"], _ = link_taxa(typed, taxa, schema, file, findings, role="fossil_occurrences")
     if not ok:
         return None
@@ -238,7 +249,8 @@ def check_modern(df: pd.DataFrame, columns, schema: TableSchema, taxa: pd.DataFr
     if not ok:
         return None
     kept = typed.loc[~drop, MODERN_COLUMNS]
-    if len(typed) and not len(kept) and taxa is not None:
+    if len(typed) and not len(kept) and taxa is not None and taxa["extant"].any():
+        # (with no extant taxon at all the taxa table carries the one problem)
         findings.add(file, f"no usable rows (all {len(typed)} left out; see the warnings)",
                      "modern occurrences of extant taxa of the taxa table",
                      "check that taxon_id / scientificName match the taxa table and that extant is set")

@@ -18,7 +18,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from .findings import Findings
+from .findings import Findings, show
 
 __all__ = ["TableFile", "read_table", "read_layer", "sha256_of", "TEXT_SUFFIXES", "PARQUET_SUFFIXES"]
 
@@ -146,6 +146,9 @@ def _read_text(path: Path, label: str, findings: Findings, wanted) -> TableFile 
     delim = _sniff(header.rstrip("\r"), path.suffix.lower())
     raw_names = next(csv.reader([header.rstrip("\r")], delimiter=delim), [])
     columns = [c.strip() for c in raw_names]
+    if len(columns) == 1:  # every table of a study has several columns
+        _one_column(columns[0], label, findings)
+        return None
     keep = [r for r in raw_names if wanted is None or r.strip() in set(wanted)]
     data = body if clean else text.encode("utf-8")
     try:
@@ -157,12 +160,60 @@ def _read_text(path: Path, label: str, findings: Findings, wanted) -> TableFile 
             # Darwin Core archives write tab-separated text without quoting: a '"' is just a character
             df = _arrow_csv(data, delim, raw_names, keep, quoting=False)
     except Exception as exc:  # noqa: BLE001 - any parser failure is a fault of the file
-        findings.add(label, f"a line the table reader could not split ({str(exc).splitlines()[0][:200]})",
-                     f"the same number of {_DELIMITERS[delim]}-separated cells on every line",
-                     "check quoting (cells holding the separator must be in double quotes) and stray separators")
+        if not _split_faults(text if not clean else body.decode("utf-8"), delim, len(raw_names), label, findings):
+            findings.add(label, f"a line the table reader could not split ({str(exc).splitlines()[0][:200]})",
+                         f"the same number of {_DELIMITERS[delim]}-separated cells on every line",
+                         "check quoting (cells holding the separator must be in double quotes) and stray separators")
         return None
     df.columns = [str(c).strip() for c in df.columns]
     return TableFile(df, columns, delimiter=delim, had_bom=had_bom)
+
+
+_OTHER_SEPARATORS = {"|": "vertical bar", ":": "colon", " ": "space"}
+
+
+def _one_column(name: str, label: str, findings: Findings) -> None:
+    """A header read as a single column: the file is separated by something else."""
+    counts = {d: name.count(d) for d in _OTHER_SEPARATORS}
+    best = max(counts, key=counts.get)
+    guess = f" (it seems to be separated by {_OTHER_SEPARATORS[best]}s '{best}')" if counts[best] else ""
+    findings.add(label, f"one column in the header line, {show(name)}{guess}",
+                 "columns separated by commas, tabs or semicolons",
+                 "save the table again as CSV (comma-separated) or TSV (tab-separated)", row=1)
+
+
+def _split_faults(text: str, delim: str, n_columns: int, label: str, findings: Findings) -> bool:
+    """Find the lines the fast reader could not split and report them; False if none is found.
+
+    Only runs after the fast reader failed, so a plain Python scan of the file is fine here.
+    """
+    # tab-separated text was last tried without quoting (Darwin Core archives), so scan it the same way
+    quoting = csv.QUOTE_NONE if delim == "\t" else csv.QUOTE_MINIMAL
+    reader = csv.reader(io.StringIO(text), delimiter=delim, strict=True, quoting=quoting)
+    what = _DELIMITERS[delim]
+    rows, found = [], []
+    start = 1
+    try:
+        for record in reader:
+            end = reader.line_num
+            if record and len(record) != n_columns and start > 1:
+                rows.append(start)
+                span = f" over lines {start}-{end} (a quoted cell runs across lines)" if end > start else ""
+                found.append(f"{len(record)} {what}-separated cells{span}")
+            start = end + 1
+    except csv.Error:
+        # the csv module stops at a quote left open until the end of the file
+        findings.rows(label, None, rows, found, f"{n_columns} {what}-separated cells as in the header line",
+                      "check quoting (cells holding the separator must be in double quotes) and stray separators")
+        findings.add(label, 'a double quote (") that opens a cell and is never closed',
+                     "each quoted cell to end with a closing double quote",
+                     'close the quote, or remove the stray double quote from this line', row=start)
+        return True
+    if not rows:
+        return False
+    findings.rows(label, None, rows, found, f"{n_columns} {what}-separated cells as in the header line",
+                  "check quoting (cells holding the separator must be in double quotes) and stray separators")
+    return True
 
 
 def _arrow_csv(data: bytes, delim: str, raw_names: list[str], keep: list[str], *,

@@ -27,6 +27,10 @@ def check_regions(gdf, schema: TableSchema, file: str, findings: Findings):
     if gdf.crs is None:
         findings.add(file, "a layer without a coordinate reference system (CRS)",
                      "a layer with its CRS declared (for example EPSG:4326, WGS84)", _CRS_FIX)
+    elif not gdf.crs.equals("EPSG:4326"):
+        # the regions stage transforms occurrence coordinates into the layer's CRS
+        findings.warn(f"{file}: region layer CRS kept as given: {gdf.crs.to_string()} (not WGS84 longitude/"
+                      f"latitude); occurrence coordinates (WGS84) are transformed into it to assign them to regions")
     attrs = pd.DataFrame(gdf.drop(columns=gdf.geometry.name)).reset_index(drop=True)
     ok = check_columns(list(attrs.columns), schema, file, findings)
     # layers have no header row: row numbers are feature numbers (1 = first feature)

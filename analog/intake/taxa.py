@@ -84,6 +84,11 @@ def check_taxa(df: pd.DataFrame, columns, schema: TableSchema, traits: dict[str,
         return None, kept
     out = typed[list(_FIXED)].copy()
     out["extant"] = out["extant"].fillna(False).astype(bool)
+    schema.rule("extant_present")
+    if not out["extant"].any() and not typed["extant"].isna().any():  # unreadable cells are reported already
+        findings.add(file, f"no taxon marked extant (all {len(out)} are extant = false)",
+                     "at least one living taxon: the tool ranks living taxa",
+                     "set extant = true (or yes, 1) for the taxa that live today", column="extant")
     for name, values in trait_cols.items():
         out[name] = values
     return out.reset_index(drop=True), kept

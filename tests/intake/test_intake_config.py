@@ -86,7 +86,7 @@ def test_toml_date_value_accepted(study):
 def test_toml_syntax_error(study):
     folder = study.write()
     (folder / "study.toml").write_text('[study]\nname = Tiny\n')
-    with pytest.raises(InputError, match=r"study\.toml:-:-: found a TOML syntax error: .*line 2"):
+    with pytest.raises(InputError, match=r"study\.toml:2:-: found a TOML syntax error: .*line 2"):
         load_study(folder)
 
 
@@ -97,7 +97,7 @@ def test_no_study_file(tmp_path):
 
 def test_warming_out_of_range(study):
     study.config["scenario"]["warming_c"] = -2
-    with pytest.raises(InputError, match=r"study\.toml:-:\[scenario\] warming_c: found '-2'"):
+    with pytest.raises(InputError, match=r"study\.toml:-:\[scenario\] warming_c: found -2; expected a number greater than 0"):
         load_study(study.write())
 
 
