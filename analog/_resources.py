@@ -1,7 +1,7 @@
 """Locate files that ship with the tool, in an installed copy or a source checkout."""
 from __future__ import annotations
 
-import importlib.resources
+import importlib.util
 from pathlib import Path
 
 _REPO = Path(__file__).resolve().parent.parent
@@ -16,7 +16,13 @@ def resource_dir(kind: str) -> Path:
     local = _REPO / repo_folder
     if local.is_dir() and (_REPO / "pyproject.toml").is_file():
         return local
+    # These folders ship as data-only (namespace) packages: take the folder itself
+    # from the import system rather than importlib.resources' multiplexed view.
     try:
-        return Path(str(importlib.resources.files(package)))
-    except ModuleNotFoundError as exc:  # pragma: no cover - broken install
-        raise FileNotFoundError(f"shipped folder '{repo_folder}' not found; reinstall analog") from exc
+        spec = importlib.util.find_spec(package)
+    except ModuleNotFoundError:
+        spec = None
+    locations = list(spec.submodule_search_locations or []) if spec is not None else []
+    if not locations:
+        raise FileNotFoundError(f"shipped folder '{repo_folder}' not found; reinstall analog")
+    return Path(locations[0])
