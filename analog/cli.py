@@ -90,6 +90,12 @@ class _Progress:
         def callback(label: str, done: int, total: int):
             key = (stage, label)
             if key not in self.tasks:
+                # a new step of this stage means its earlier steps are over
+                for (s, _), task in self.tasks.items():
+                    if s == stage:
+                        t = self.bar.tasks[task]
+                        self.bar.update(task, completed=t.total or t.completed)
+                        self.bar.stop_task(task)
                 self.tasks[key] = self.bar.add_task(f"{stage}: {label}", total=total)
             self.bar.update(self.tasks[key], completed=done, total=total)
         return callback
