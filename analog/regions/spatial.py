@@ -28,12 +28,11 @@ def assign_points(lon, lat, regions, *, engine=None, chunk_size: int = 1_000_000
         Where the chunks of points are tested (default: in this process). The results
         are identical.
     chunk_size : int, default=1_000_000
-        Distinct locations per chunk of work.
+        Points per chunk of work.
     index : {'auto', 'grid', 'tree'}, default='auto'
-        'tree' tests every distinct location against the polygons' spatial index;
-        'grid' first looks each location up in a grid whose cells no region boundary
-        comes near, and tests only the rest; 'auto' uses the grid from 50,000 distinct
-        locations on. All three give the same answer.
+        'tree' tests every distinct location exactly; 'grid' first looks each point up in
+        a grid whose cells no region boundary comes near and tests only the rest; 'auto'
+        uses the grid from 50,000 points on. All three give the same answer.
 
     Returns
     -------
@@ -42,18 +41,20 @@ def assign_points(lon, lat, regions, *, engine=None, chunk_size: int = 1_000_000
 
     Notes
     -----
-    Coordinates are deduplicated first (hashing, not sorting), so each distinct location is
-    tested once. The predicate is ``intersects``: a point on a region's boundary belongs to it
-    (``within`` would drop points on edges). A point on an edge shared by several regions, or in
-    their overlap, goes to the candidate with the lowest ``region_id`` (string order), so the
-    assignment is deterministic and never counts a record twice. A point inside a hole belongs to
-    the region only if another polygon (for example an island region) covers it.
+    The predicate is ``intersects``: a point on a region's boundary belongs to it (``within``
+    would drop points on edges). A point on an edge shared by several regions, or in their
+    overlap, goes to the candidate with the lowest ``region_id`` (string order), so the
+    assignment is deterministic and never counts a record twice. A point inside a hole belongs
+    to the region only if another polygon (for example an island region) covers it.
+
+    *Exact test.* Repeated coordinates are tested once (hashing, not sorting); candidates come
+    from the bounding boxes in an STR-tree and are confirmed with prepared polygons.
 
     *Grid lookup.* Region boundaries are densified to segments no longer than half a grid
     cell; every cell within reach of a boundary vertex (half a segment plus a margin of 10⁻⁶
     cell) is marked as near a boundary. The remaining cells hold no boundary point, so each
     4-connected group of them lies inside the same set of polygons, found by testing one cell
-    centre per group. Locations in those cells take the group's answer; the others are tested
+    centre per group. Points in those cells take the group's answer; the others are tested
     exactly. The margin keeps rounding in the cell arithmetic from crossing a boundary.
     """
     from ..engine import engine_scope, split_counts
@@ -62,72 +63,86 @@ def assign_points(lon, lat, regions, *, engine=None, chunk_size: int = 1_000_000
         raise AnalogError(f"`index` was {index!r} but is expected to be in {{'auto', 'grid', 'tree'}}")
     lon = np.asarray(lon, dtype=float)
     lat = np.asarray(lat, dtype=float)
-    out = np.full(len(lon), -1, dtype=np.int64)
     if len(lon) == 0 or len(regions) == 0:
         with engine_scope(engine):  # still reject an unknown engine name
-            return out
-    codes, xy = _distinct_locations(lon, lat)
+            return np.full(len(lon), -1, dtype=np.int64)
     crs = regions.crs
+    to_crs = None
     if crs is None:
         warnings.warn("the regions layer has no CRS; it was taken to be longitude/latitude (EPSG:4326)",
                       AnalogWarning, stacklevel=2)
     elif not pyproj.CRS.from_user_input(crs).equals(pyproj.CRS.from_epsg(4326), ignore_axis_order=True):
-        tr = pyproj.Transformer.from_crs("EPSG:4326", crs, always_xy=True)
-        x, y = tr.transform(xy[:, 0], xy[:, 1])
-        xy = np.column_stack([x, y])
-    geoms = np.asarray(regions.geometry.values, dtype=object)
+        to_crs = pyproj.CRS.from_user_input(crs).to_wkt()
+    # a private copy: preparing polygons for fast tests must not touch the caller's objects
+    geoms = shapely.from_wkb(shapely.to_wkb(np.asarray(regions.geometry.values, dtype=object)))
     # rank of each region_id in string order: the tie-break for shared edges and overlaps
     id_rank = np.empty(len(regions), dtype=np.int64)
     id_rank[np.argsort(regions["region_id"].astype(str).to_numpy(), kind="stable")] = np.arange(len(regions))
-    use_grid = index == "grid" or (index == "auto" and len(xy) >= _GRID_FROM)
-    grid = _BoundaryGrid.build(geoms, id_rank, n_points=len(xy)) if use_grid else None
-    chunks = [xy[s:e] for s, e in split_counts(len(xy), chunk_size)]
+    use_grid = index == "grid" or (index == "auto" and len(lon) >= _GRID_FROM)
+    grid = _BoundaryGrid.build(geoms, id_rank, n_points=len(lon)) if use_grid else None
+    chunks = [(lon[s:e], lat[s:e]) for s, e in split_counts(len(lon), chunk_size)]
     with engine_scope(engine) as eng:
-        parts = eng.map(_assign_chunk, chunks, shared=(geoms, id_rank, grid))
-    unique_region = np.concatenate(parts) if parts else np.zeros(0, dtype=np.int64)
-    ok = codes >= 0
-    out[ok] = unique_region[codes[ok]]
-    return out
+        parts = eng.map(_assign_chunk, chunks, shared=(geoms, id_rank, grid, to_crs))
+    return np.concatenate(parts)
 
 
-_GRID_FROM = 50_000          # distinct locations from which 'auto' builds the grid
+_GRID_FROM = 50_000          # points from which 'auto' builds the grid
 _GRID_MAX_CELLS = 4_000_000  # 16 MB of int32 lookup table
 _NEAR_BOUNDARY = -2
 
 
-def _distinct_locations(lon: np.ndarray, lat: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def _distinct_locations(xy: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Code of each point's distinct location (-1 for a missing coordinate) and the locations."""
-    ok = np.isfinite(lon) & np.isfinite(lat)
-    codes = np.full(len(lon), -1, dtype=np.int64)
+    ok = np.isfinite(xy).all(axis=1)
+    codes = np.full(len(xy), -1, dtype=np.int64)
     # a complex number holds both coordinates, so one hash table finds the distinct pairs
-    c, uniq = pd.factorize(lon[ok] + 1j * lat[ok], sort=False, use_na_sentinel=True)
+    c, uniq = pd.factorize(xy[ok, 0] + 1j * xy[ok, 1], sort=False, use_na_sentinel=True)
     codes[ok] = c
     uniq = np.asarray(uniq)
     return codes, np.column_stack([uniq.real, uniq.imag])
 
 
-def _tree_query(tree, geoms_rank: np.ndarray, xy: np.ndarray) -> np.ndarray:
-    """Exact test: lowest-ranked region whose polygon intersects each point (-1 for none)."""
+def _exact(tree, geoms: np.ndarray, id_rank: np.ndarray, xy: np.ndarray) -> np.ndarray:
+    """Lowest-ranked region whose polygon intersects each location (-1 for none).
+
+    Bounding-box candidates from the tree, confirmed by ``intersects`` on prepared polygons.
+    """
     best = np.full(len(xy), -1, dtype=np.int64)
     if not len(xy):
         return best
-    pi, ri = tree.query(shapely.points(xy), predicate="intersects")
+    pts = shapely.points(xy)
+    pi, ri = tree.query(pts)
+    hit = shapely.intersects(geoms[ri], pts[pi])
+    pi, ri = pi[hit], ri[hit]
     if len(pi):
-        order = np.lexsort((geoms_rank[ri], pi))
+        order = np.lexsort((id_rank[ri], pi))
         pi, ri = pi[order], ri[order]
         first = np.r_[True, pi[1:] != pi[:-1]]
         best[pi[first]] = ri[first]
     return best
 
 
-def _assign_chunk(xy: np.ndarray, shared) -> np.ndarray:
-    """Region position of each location of one chunk (module level so a cluster can run it)."""
-    geoms, id_rank, grid = shared
+def _exact_distinct(geoms, id_rank, xy) -> np.ndarray:
+    """:func:`_exact` testing each distinct location once."""
+    codes, uniq = _distinct_locations(xy)
+    shapely.prepare(geoms)
+    found = _exact(shapely.STRtree(geoms), geoms, id_rank, uniq)
+    return np.where(codes >= 0, found[np.maximum(codes, 0)], -1) if len(found) else np.full(len(xy), -1)
+
+
+def _assign_chunk(chunk, shared) -> np.ndarray:
+    """Region position of each point of one chunk (module level so a cluster can run it)."""
+    lon, lat = chunk
+    geoms, id_rank, grid, to_crs = shared
+    if to_crs is not None:
+        lon, lat = pyproj.Transformer.from_crs("EPSG:4326", to_crs, always_xy=True).transform(lon, lat)
+    xy = np.column_stack([np.asarray(lon, dtype=float), np.asarray(lat, dtype=float)])
     if grid is None:
-        return _tree_query(shapely.STRtree(geoms), id_rank, xy)
+        return _exact_distinct(geoms, id_rank, xy)
     best = grid.lookup(xy)
     todo = np.flatnonzero(best == _NEAR_BOUNDARY)
-    best[todo] = _tree_query(shapely.STRtree(geoms), id_rank, xy[todo]) if len(todo) else -1
+    if len(todo):
+        best[todo] = _exact_distinct(geoms, id_rank, xy[todo])
     return best
 
 
@@ -170,7 +185,8 @@ class _BoundaryGrid:
             first = first[1:] if labels.ravel()[first[0]] == 0 else first  # label 0 = near a boundary
             iy, ix = np.divmod(first, nx)
             centres = np.column_stack([x0 + (ix + 0.5) * dx, y0 + (iy + 0.5) * dy])
-            answer = _tree_query(shapely.STRtree(geoms), id_rank, centres)
+            shapely.prepare(geoms)
+            answer = _exact(shapely.STRtree(geoms), geoms, id_rank, centres)
             lut = np.concatenate([[_NEAR_BOUNDARY], answer]).astype(np.int32)
             table = lut[labels]
         return cls(float(x0), float(y0), dx, dy, table)

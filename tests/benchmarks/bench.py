@@ -1,0 +1,617 @@
+"""Benchmark harness for analog: a synthetic national-scale study, timed stage by stage.
+
+Run it as a script (it is not a test):
+
+    python tests/benchmarks/bench.py --scale small
+    python tests/benchmarks/bench.py --scale national --stages floor,intake,spatial,occupancy
+
+It writes an invented study (Parquet tables and a GeoParquet region layer) into a cache
+folder, reuses it on later runs (``--regenerate`` rebuilds it), then runs every stage in a
+fresh Python process and reports, per stage: wall time, throughput (input rows per second),
+peak memory (the process's maximum resident set size, inputs included) and two ratios
+measured in the same run: against a straightforward pandas/geopandas version of the stage
+written below, and against the time to read the inputs once with pyarrow (the floor).
+The output is a Markdown table (printed, and saved with ``--out``).
+
+Everything in the generated study is made up: taxa, places and numbers come from a seeded
+generator.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import platform
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+SCALES = {
+    "national": dict(n_fossil=2_000_000, n_modern=10_000_000, n_taxa=20_000, n_regions=500, n_localities=200_000),
+    "small": dict(n_fossil=200_000, n_modern=1_000_000, n_taxa=2_000, n_regions=50, n_localities=20_000),
+}
+GENERATOR_VERSION = 3
+STAGES = ("floor", "intake", "spatial", "spatial_naive", "occupancy", "occupancy_naive", "trajectory",
+          "bootstrap_naive", "whole")
+DEFAULT_CACHE = Path(os.environ.get("ANALOG_BENCH_DATA", Path.home() / ".cache" / "analog-bench"))
+EXTENT = (110.0, -40.0, 150.0, -10.0)  # lon/lat box of the invented country and its seas
+
+
+# ============================================================ the invented study
+
+def _names(n: int, rng: np.random.Generator) -> np.ndarray:
+    """Unique invented genus names from syllables (e.g. 'Korabetina')."""
+    syl = np.array(["ka", "ro", "be", "ti", "nu", "sa", "vel", "dor", "mi", "qua", "lo", "pe", "tra", "zu",
+                    "gri", "ho", "fen", "cal", "mor", "ixa", "ul", "dre", "sko", "ny", "bra", "ese", "vo", "tul",
+                    "ama", "pri"])
+    ends = np.array(["ina", "ella", "ites", "opsis", "aria", "ulus", "onia", "ax"])
+    k = len(syl)
+    i = np.arange(n)
+    parts = [syl[(i // k ** p) % k] for p in range(3)]
+    words = [f"{a}{b}{c}{ends[j % len(ends)]}" for j, (a, b, c) in enumerate(zip(*parts))]
+    words = [w[0].upper() + w[1:] for w in words]
+    return np.array(rng.permutation(words), dtype=object)
+
+
+def _outline(rng) -> "shapely.Polygon":
+    import shapely
+
+    theta = np.linspace(0, 2 * np.pi, 721)[:-1]
+    ph = rng.uniform(0, 2 * np.pi, 3)
+    r = 1 + 0.08 * np.sin(3 * theta + ph[0]) + 0.05 * np.sin(7 * theta + ph[1]) + 0.03 * np.sin(13 * theta + ph[2])
+    return shapely.Polygon(np.column_stack([130 + 18 * r * np.cos(theta), -25 + 13 * r * np.sin(theta)]))
+
+
+def generate(folder: Path, *, n_fossil: int, n_modern: int, n_taxa: int, n_regions: int, n_localities: int,
+             seed: int = 20261) -> dict:
+    """Write the invented study into ``folder``; return its sizes."""
+    import geopandas as gpd
+    import pyarrow as pa
+    import pyarrow.compute as pc
+    import pyarrow.parquet as pq
+    import shapely
+
+    rng = np.random.default_rng(seed)
+    folder.mkdir(parents=True, exist_ok=True)
+    t0 = time.perf_counter()
+
+    # regions: Voronoi cells inside an irregular coastline, boundaries densified to 0.02°
+    outline = _outline(rng)
+    seeds = []
+    while len(seeds) < n_regions:
+        p = np.column_stack([rng.uniform(EXTENT[0], EXTENT[2], n_regions), rng.uniform(EXTENT[1], EXTENT[3], n_regions)])
+        seeds.extend(p[shapely.contains_xy(outline, p[:, 0], p[:, 1])])
+    seeds = np.array(seeds[:n_regions])
+    cells = shapely.get_parts(shapely.voronoi_polygons(shapely.multipoints(seeds), extend_to=shapely.box(*EXTENT)))
+    cells = shapely.segmentize(shapely.intersection(cells, outline), 0.02)
+    order = np.argsort(shapely.get_coordinates(shapely.centroid(cells))[:, 0])
+    cells = cells[order]
+    rid = [f"R{i + 1:04d}" for i in range(len(cells))]
+    regions = gpd.GeoDataFrame({"region_id": rid, "name": [f"District {i + 1}" for i in range(len(cells))]},
+                               geometry=cells, crs="EPSG:4326")
+    regions.to_parquet(folder / "regions.parquet")
+
+    # taxa: invented names and ranks, 60 % living, four traits
+    names = _names(n_taxa, rng)
+    tid = np.array([f"T{i + 1:05d}" for i in range(n_taxa)], dtype=object)
+    extant = rng.random(n_taxa) < 0.6
+    fam = rng.integers(0, max(n_taxa // 20, 1), n_taxa)
+    taxa = pa.table({
+        "taxon_id": tid, "scientificName": names, "taxonRank": np.full(n_taxa, "genus", dtype=object),
+        "kingdom": np.full(n_taxa, "Animalia", dtype=object),
+        "phylum": np.array([f"Phylozoa{p}" for p in fam % 4], dtype=object),
+        "class": np.array([f"Classida{c}" for c in fam % 20], dtype=object),
+        "order": np.array([f"Ordinida{o}" for o in fam % 100], dtype=object),
+        "family": np.array([f"Familidae{f}" for f in fam], dtype=object),
+        "genus": names, "extant": extant,
+        "depth_zone": np.array(["shelf", "slope", "basin"], dtype=object)[rng.integers(0, 3, n_taxa)],
+        "body_size": np.array(["small", "medium", "large"], dtype=object)[rng.integers(0, 3, n_taxa)],
+        "calcified": rng.random(n_taxa) < 0.5,
+        "thermal_breadth_c": np.round(rng.normal(15, 5, n_taxa), 1),
+    })
+    pq.write_table(taxa, folder / "taxa.parquet")
+
+    # fossil record: each taxon a hat-shaped history between its first and last appearance
+    first = rng.uniform(10, 250, n_taxa)
+    last = np.where(extant, 0.0, rng.uniform(0, 1, n_taxa) * (first - 5))
+    weight = (first - last) * rng.lognormal(0, 0.8, n_taxa)
+    counts = rng.multinomial(n_fossil, weight / weight.sum())
+    taxon = np.repeat(np.arange(n_taxa), counts)
+    target = last[taxon] + (first[taxon] - last[taxon]) * rng.beta(2, 2, n_fossil)
+    # localities: 70 % dated within one 10-Myr bin (stage-like ranges), 30 % with wider ranges
+    mid = np.sort(rng.uniform(0, 252, n_localities))
+    narrow = rng.random(n_localities) < 0.7
+    w = np.where(narrow, rng.uniform(1, 5, n_localities), rng.uniform(5, 25, n_localities))
+    b = np.floor(mid / 10) * 10
+    young = np.where(narrow, b + rng.uniform(0, 1, n_localities) * (10 - w), np.maximum(mid - w / 2, 0))
+    old = young + w
+    lat = np.round(rng.uniform(-75, 75, n_localities), 4)
+    lon = np.round(rng.uniform(-180, 180, n_localities), 4)
+    loc = np.clip(np.searchsorted(mid, target) + rng.integers(-30, 31, n_fossil), 0, n_localities - 1)
+    fossils = pa.table({
+        "occurrenceID": _ids("F", n_fossil), "taxon_id": pa.array(tid[taxon]),
+        "oldest_ma": np.round(old[loc], 3), "youngest_ma": np.round(young[loc], 3),
+        "decimalLatitude": lat[loc], "decimalLongitude": lon[loc],
+        "locationID": pc.take(_ids("LOC", n_localities), pa.array(loc)),
+    })
+    pq.write_table(fossils, folder / "fossil_occurrences.parquet", row_group_size=1 << 20)
+    del fossils, taxon, target, loc
+
+    # modern records of living taxa: clouds around each taxon's home, Darwin Core columns
+    living = np.flatnonzero(extant)
+    minx, miny, maxx, maxy = EXTENT
+    home = np.column_stack([rng.uniform(minx + 3, maxx - 3, len(living)), rng.uniform(miny + 3, maxy - 3, len(living))])
+    spread = rng.uniform(0.3, 4.0, len(living))
+    mw = rng.lognormal(0, 1.0, len(living))
+    counts = rng.multinomial(n_modern, mw / mw.sum())
+    who = np.repeat(np.arange(len(living)), counts)
+    x = np.clip(home[who, 0] + rng.normal(0, 1, n_modern) * spread[who], minx, maxx)
+    y = np.clip(home[who, 1] + rng.normal(0, 1, n_modern) * spread[who], miny, maxy)
+    digits = rng.choice([4, 3, 2], n_modern, p=[0.7, 0.2, 0.1])  # coarse records repeat coordinates
+    scale = 10.0 ** digits
+    x, y = np.round(x * scale) / scale, np.round(y * scale) / scale
+    perm = rng.permutation(n_modern)  # exports are not grouped by taxon
+    name_idx = pa.array(living[who][perm].astype(np.int32))
+    dates = pa.array([f"{yr}-{m:02d}-{d:02d}" for yr in range(1950, 2026) for m in range(1, 13) for d in (1, 15)])
+    modern = pa.table({
+        "occurrenceID": _ids("M", n_modern),
+        "scientificName": pa.DictionaryArray.from_arrays(name_idx, pa.array(names)).cast(pa.string()),
+        "decimalLatitude": y[perm], "decimalLongitude": x[perm],
+        "basisOfRecord": pa.DictionaryArray.from_arrays(
+            pa.array(rng.integers(0, 3, n_modern).astype(np.int32)),
+            pa.array(["HumanObservation", "PreservedSpecimen", "MaterialSample"])).cast(pa.string()),
+        "eventDate": pa.DictionaryArray.from_arrays(pa.array(rng.integers(0, len(dates), n_modern).astype(np.int32)),
+                                                    dates).cast(pa.string()),
+    })
+    pq.write_table(modern, folder / "modern_occurrences.parquet", row_group_size=1 << 20)
+    (folder / "study.toml").write_text(_STUDY_TOML.format(n=n_taxa, seed=seed), encoding="utf-8")
+    meta = {"version": GENERATOR_VERSION, "seed": seed, "n_fossil": n_fossil, "n_modern": n_modern,
+            "n_taxa": n_taxa, "n_regions": len(regions), "n_localities": n_localities,
+            "seconds": round(time.perf_counter() - t0, 1)}
+    (folder / "meta.json").write_text(json.dumps(meta, indent=1))
+    return meta
+
+
+def _ids(prefix: str, n: int):
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    width = len(str(n))
+    digits = pc.utf8_lpad(pc.cast(pa.array(np.arange(1, n + 1)), pa.string()), width, "0")
+    return pc.binary_join_element_wise(pa.scalar(prefix), digits, "")
+
+
+_STUDY_TOML = '''# Invented benchmark study: every taxon, place and number here is made up by a seeded generator
+# (tests/benchmarks/bench.py).
+
+[study]
+name = "Benchmark: invented national study ({n} taxa)"
+seed = {seed}
+
+[inputs]
+taxa = "taxa.parquet"
+fossil_occurrences = "fossil_occurrences.parquet"
+modern_occurrences = "modern_occurrences.parquet"
+regions = "regions.parquet"
+
+[traits.depth_zone]
+kind = "categorical"
+levels = ["shelf", "slope", "basin"]
+reference = "shelf"
+
+[traits.body_size]
+kind = "ordinal"
+levels = ["small", "medium", "large"]
+
+[traits.calcified]
+kind = "binary"
+
+[traits.thermal_breadth_c]
+kind = "numeric"
+
+[scenario]
+warming_c = 4.0
+'''
+
+
+def ensure_data(scale: str, cache: Path, regenerate: bool) -> Path:
+    folder = cache / scale
+    meta = folder / "meta.json"
+    want = dict(SCALES[scale])
+    if not regenerate and meta.is_file():
+        got = json.loads(meta.read_text())
+        if got.get("version") == GENERATOR_VERSION and all(got.get(k) == v for k, v in want.items()
+                                                           if k != "n_regions"):
+            return folder
+    print(f"generating the {scale} study in {folder} ...", file=sys.stderr, flush=True)
+    info = generate(folder, **want)
+    print(f"  done in {info['seconds']} s", file=sys.stderr, flush=True)
+    return folder
+
+
+# ============================================================ inputs as the stages receive them
+
+def _read(folder: Path, name: str, columns=None):
+    import pyarrow.parquet as pq
+
+    return pq.read_table(folder / f"{name}.parquet", columns=columns).to_pandas()
+
+
+def _fossils_and_taxa(folder: Path):
+    occ = _read(folder, "fossil_occurrences", ["occurrenceID", "taxon_id", "oldest_ma", "youngest_ma",
+                                               "decimalLatitude", "decimalLongitude", "locationID"])
+    taxa = _read(folder, "taxa")
+    return occ, taxa
+
+
+def _modern(folder: Path):
+    """Modern records with taxon_id (linked by name, as intake does) and the regions."""
+    import geopandas as gpd
+    import pandas as pd
+
+    occ = _read(folder, "modern_occurrences", ["occurrenceID", "scientificName", "decimalLatitude", "decimalLongitude"])
+    taxa = _read(folder, "taxa", ["taxon_id", "scientificName"])
+    lookup = pd.Index(taxa["scientificName"]).get_indexer(occ["scientificName"])
+    occ["taxon_id"] = pd.array(taxa["taxon_id"].to_numpy()[lookup], dtype="str")
+    occ = occ.drop(columns="scientificName")
+    return occ, gpd.read_parquet(folder / "regions.parquet")
+
+
+# ============================================================ stages (each runs in its own process)
+
+def stage_floor(folder, args):
+    """Read every input once with pyarrow: the columns the tool needs, nothing else."""
+    import pyarrow.parquet as pq
+
+    pq.read_table(folder / "taxa.parquet", columns=["taxon_id"])  # one-time library start-up, not reading
+    t0 = time.perf_counter()
+    n = 0
+    for name, cols in (("taxa", None),
+                       ("fossil_occurrences", ["occurrenceID", "taxon_id", "oldest_ma", "youngest_ma",
+                                               "decimalLatitude", "decimalLongitude", "locationID"]),
+                       ("modern_occurrences", ["occurrenceID", "scientificName", "decimalLatitude",
+                                               "decimalLongitude"]),
+                       ("regions", None)):
+        n += pq.read_table(folder / f"{name}.parquet", columns=cols).num_rows
+    return {"seconds": time.perf_counter() - t0, "rows": n}
+
+
+def stage_intake(folder, args):
+    import warnings
+
+    from analog.intake import load_study
+
+    t0 = time.perf_counter()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        study = load_study(folder)
+    rows = len(study.taxa) + len(study.fossil_occurrences) + len(study.modern_occurrences) + len(study.regions)
+    return {"seconds": time.perf_counter() - t0, "rows": rows}
+
+
+def stage_spatial(folder, args):
+    from analog.engine import get_engine
+    from analog.regions.core import _region_records
+    from analog.regions.spatial import assign_points
+
+    occ, regions = _modern(folder)
+    with get_engine(args.engine) as engine:
+        t0 = time.perf_counter()
+        pos = assign_points(occ["decimalLongitude"].to_numpy(), occ["decimalLatitude"].to_numpy(), regions,
+                            engine=engine)
+        t1 = time.perf_counter()
+        records = _region_records(pos, occ["taxon_id"], regions["region_id"].astype(str).to_numpy())
+        t2 = time.perf_counter()
+    return {"seconds": t2 - t0, "rows": len(occ), "detail": {"assign": t1 - t0, "presence counts": t2 - t1},
+            "check": {"assigned": int((pos >= 0).sum()), "pairs": len(records)}}
+
+
+def stage_spatial_naive(folder, args):
+    """Straightforward: geopandas.sjoin of every point (no de-duplication), then a pandas count."""
+    import geopandas as gpd
+
+    occ, regions = _modern(folder)
+    n = len(occ)
+    k = min(n, args.naive_points)
+    sample = occ.sample(n=k, random_state=1) if k < n else occ
+    t0 = time.perf_counter()
+    pts = gpd.GeoDataFrame({"taxon_id": sample["taxon_id"].to_numpy()},
+                           geometry=gpd.points_from_xy(sample["decimalLongitude"], sample["decimalLatitude"]),
+                           crs="EPSG:4326")
+    j = gpd.sjoin(pts, regions[["region_id", "geometry"]], how="inner", predicate="intersects")
+    j = j.sort_values("region_id", kind="stable")
+    j = j[~j.index.duplicated(keep="first")]     # lowest region_id for points on shared edges
+    counts = j.groupby(["region_id", "taxon_id"]).size()
+    sec = time.perf_counter() - t0
+    return {"seconds": sec * n / k, "measured_seconds": sec, "rows": n, "sample_rows": k,
+            "check": {"pairs_in_sample": len(counts)},
+            "note": f"measured on {k:,} of {n:,} points, scaled linearly" if k < n else "all points"}
+
+
+def _occupancy_params():
+    from analog.trajectory import PARAMS
+
+    return PARAMS()
+
+
+def stage_occupancy(folder, args):
+    from analog.engine import get_engine
+    from analog.trajectory.occupancy import build_occupancy
+
+    occ, taxa = _fossils_and_taxa(folder)
+    p = _occupancy_params()
+    with get_engine(args.engine) as engine:
+        t0 = time.perf_counter()
+        res = build_occupancy(occ, taxa, units=p.units, cell_km=p.cell_km, bins=p.bins, bin_width_ma=p.bin_width_ma,
+                              age_handling=p.age_handling, age_draws=p.age_draws, quota=p.quota,
+                              subsample_reps=p.subsample_reps, min_sampled=p.min_sampled,
+                              rng=np.random.default_rng(1), engine=engine)
+        sec = time.perf_counter() - t0
+    return {"seconds": sec, "rows": len(occ), "check": {"series_rows": len(res.table)}}
+
+
+def stage_occupancy_naive(folder, args):
+    """Straightforward: the same counts with pandas, one taxon at a time in a Python loop.
+
+    Per age draw: point ages, bins, sampled cells per bin (drop_duplicates + groupby on the whole
+    table), then for each taxon its occupied cells per bin. The per-taxon loop runs for a sample of
+    taxa and is scaled by the number of taxa; the whole-table parts run in full.
+    """
+    import pandas as pd
+    from pyproj import Transformer
+
+    occ, taxa = _fossils_and_taxa(folder)
+    p = _occupancy_params()
+    rng = np.random.default_rng(1)
+    all_taxa = occ["taxon_id"].unique()
+    k = min(len(all_taxa), args.naive_taxa)
+    chosen = set(rng.choice(all_taxa, k, replace=False)) if k < len(all_taxa) else set(all_taxa)
+    t0 = time.perf_counter()
+    tr = Transformer.from_crs("EPSG:4326", "EPSG:6933", always_xy=True)
+    x, y = tr.transform(occ["decimalLongitude"].to_numpy(), occ["decimalLatitude"].to_numpy())
+    size = p.cell_km * 1000.0
+    df = pd.DataFrame({"taxon_id": occ["taxon_id"], "cx": np.floor(x / size).astype(int),
+                       "cy": np.floor(y / size).astype(int)})
+    young, width = occ["youngest_ma"].to_numpy(), (occ["oldest_ma"] - occ["youngest_ma"]).to_numpy()
+    loop = 0.0
+    results = []
+    for _ in range(p.age_draws):
+        df["bin"] = np.floor((young + rng.random(len(df)) * width) / p.bin_width_ma).astype(int)
+        sampled = df.drop_duplicates(["bin", "cx", "cy"]).groupby("bin").size()
+        t1 = time.perf_counter()
+        for taxon_id, g in df[df["taxon_id"].isin(chosen)].groupby("taxon_id"):
+            occupied = g.drop_duplicates(["bin", "cx", "cy"]).groupby("bin").size()
+            results.append((taxon_id, occupied / sampled.reindex(occupied.index)))
+        loop += time.perf_counter() - t1
+    total = time.perf_counter() - t0
+    scaled = (total - loop) + loop * len(all_taxa) / k
+    return {"seconds": scaled, "measured_seconds": total, "rows": len(occ), "sample_taxa": k,
+            "note": (f"per-taxon loop measured on {k:,} of {len(all_taxa):,} taxa, scaled linearly; "
+                     "whole-table parts in full") if k < len(all_taxa) else "all taxa"}
+
+
+def _trajectory_study(folder):
+    import pandas as pd
+
+    from analog.reference import load_intervals
+    from analog.study import Study, StudyConfig
+
+    occ, taxa = _fossils_and_taxa(folder)
+    cfg = StudyConfig(name="bench", seed=1, folder=folder)
+    return Study(config=cfg, taxa=taxa, fossil_occurrences=occ, modern_occurrences=pd.DataFrame(), regions=None,
+                 intervals=load_intervals())
+
+
+def stage_trajectory(folder, args):
+    import warnings
+
+    from analog.engine import get_engine
+    from analog.trajectory import PARAMS, run_trajectory
+
+    study = _trajectory_study(folder)
+    marks = {}
+
+    def progress(label, done, total):
+        marks.setdefault(label, time.perf_counter())
+
+    with get_engine(args.engine) as engine, warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        t0 = time.perf_counter()
+        res = run_trajectory(study, PARAMS(), rng=np.random.default_rng(1), progress=progress, engine=engine)
+        t_end = time.perf_counter()
+    order = ["occupancy", "model fits", "extinction probability", "noise null", "hindcast", "done"]
+    detail = {a: marks[b] - marks[a] for a, b in zip(order, order[1:]) if a in marks and b in marks}
+    n_ext = int(res.risk["trajectory_p"].notna().sum())
+    return {"seconds": t_end - t0, "rows": len(study.fossil_occurrences), "detail": detail,
+            "check": {"extant_with_estimate": n_ext, "series": int(res.occupancy["taxon_id"].nunique())}}
+
+
+def stage_bootstrap_naive(folder, args):
+    """Straightforward: the parametric bootstrap one taxon at a time (its replicates vectorized)."""
+    import warnings
+
+    from analog.trajectory import PARAMS
+    from analog.trajectory.extinction import bootstrap_probabilities
+    from analog.trajectory.models import FitSet, SeriesBatch, fit_models
+    from analog.trajectory.occupancy import build_occupancy
+
+    study = _trajectory_study(folder)
+    p = PARAMS()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        occ = build_occupancy(study.fossil_occurrences, study.taxa, rng=np.random.default_rng(1))
+    table = occ.table
+    table["bin_mid_ma"] = (table["bin_oldest_ma"] + table["bin_youngest_ma"]) / 2.0
+    batch = SeriesBatch.from_table(table)
+    fitset = fit_models(batch, models=p.models, min_series_bins=p.min_series_bins)
+    extant = set(study.taxa.loc[study.taxa["extant"].astype(bool), "taxon_id"])
+    idx = [i for i, key in enumerate(batch.key) if key in extant and fitset.weights[i].sum() > 0]
+    k = min(len(idx), args.naive_series)
+    rng = np.random.default_rng(2)
+    pick = rng.choice(idx, k, replace=False)
+    thr = float(np.log(p.threshold_occupancy / (1 - p.threshold_occupancy)))
+    t0 = time.perf_counter()
+    for i in pick:
+        one = FitSet(batch.take([i]), {m: f.take([i]) for m, f in fitset.fits.items()}, fitset.weights[[i]],
+                     fitset.models)
+        bootstrap_probabilities(one, threshold=thr, horizon_bins=p.horizon_bins, step_myr=occ.step_myr,
+                                n_boot=p.n_bootstrap, rng=rng, min_series_bins=p.min_series_bins)
+    sec = time.perf_counter() - t0
+    return {"seconds": sec * len(idx) / max(k, 1), "measured_seconds": sec, "rows": len(study.fossil_occurrences),
+            "note": f"measured on {k:,} of {len(idx):,} living series, scaled linearly"}
+
+
+def stage_whole(folder, args):
+    import warnings
+
+    from analog.engine import get_engine
+    from analog.intake import load_study
+    from analog.pipeline import STAGE_ORDER, run_study, write_outputs
+
+    stages = tuple(s for s in STAGE_ORDER if s not in set(args.skip_stages))
+    t0 = time.perf_counter()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        study = load_study(folder)
+        t_intake = time.perf_counter() - t0
+        with get_engine(args.engine) as engine:
+            run = run_study(study, stages=stages, engine=engine)
+        t1 = time.perf_counter()
+        with tempfile.TemporaryDirectory() as tmp:
+            write_outputs(run, Path(tmp) / "out", figures=False)
+        t2 = time.perf_counter()
+    detail = {"intake": t_intake, **run.timings, "write (tables, briefing, no figures)": t2 - t1}
+    rows = len(study.taxa) + len(study.fossil_occurrences) + len(study.modern_occurrences) + len(study.regions)
+    return {"seconds": t2 - t0, "rows": rows, "detail": detail, "stages": list(run.stages_done),
+            "skipped": dict(run.skipped)}
+
+
+# ============================================================ driver
+
+def _worker(args) -> None:
+    folder = Path(args.data)
+    out = globals()[f"stage_{args.worker}"](folder, args)
+    ru = resource.getrusage(resource.RUSAGE_SELF)
+    out["peak_rss_bytes"] = ru.ru_maxrss * 1024   # kilobytes on Linux
+    out["children_peak_rss_bytes"] = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss * 1024
+    print("RESULT " + json.dumps(out), flush=True)
+
+
+def _run_stage(stage: str, folder: Path, args) -> dict:
+    cmd = [sys.executable, str(Path(__file__).resolve()), "--worker", stage, "--data", str(folder),
+           "--engine", args.engine, "--naive-points", str(args.naive_points), "--naive-taxa", str(args.naive_taxa),
+           "--naive-series", str(args.naive_series)]
+    if args.skip_stages:
+        cmd += ["--skip-stages", ",".join(args.skip_stages)]
+    print(f"[{time.strftime('%H:%M:%S')}] {stage} ...", file=sys.stderr, flush=True)
+    t0 = time.perf_counter()
+    try:
+        proc = subprocess.run(cmd, capture_output=True, text=True, timeout=args.timeout)
+    except subprocess.TimeoutExpired:
+        return {"error": f"did not finish within {args.timeout:.0f} s (stopped)", "wall_process": args.timeout}
+    lines = [ln for ln in proc.stdout.splitlines() if ln.startswith("RESULT ")]
+    if proc.returncode != 0 or not lines:
+        tail = (proc.stderr or proc.stdout).strip().splitlines()[-3:]
+        return {"error": f"exit {proc.returncode}: {' | '.join(tail)}"}
+    res = json.loads(lines[-1][len("RESULT "):])
+    res["wall_process"] = time.perf_counter() - t0
+    print(f"    {res['seconds']:.1f} s", file=sys.stderr, flush=True)
+    return res
+
+
+def _fmt_s(x):
+    return f"{x:,.1f}" if x >= 10 else f"{x:,.2f}"
+
+
+def report(scale: str, folder: Path, results: dict, args, load: tuple) -> str:
+    meta = json.loads((folder / "meta.json").read_text())
+    floor = results.get("floor", {}).get("seconds")
+    naive_of = {"spatial": "spatial_naive", "occupancy": "occupancy_naive", "trajectory": "bootstrap_naive"}
+    labels = {"floor": "read floor (pyarrow, needed columns)", "intake": "intake (read + validate)",
+              "spatial": "spatial assignment + presence counts", "spatial_naive": "  straightforward: sjoin every point",
+              "occupancy": "occupancy binning (20 age draws)",
+              "occupancy_naive": "  straightforward: per-taxon loop",
+              "trajectory": "trajectory stage (whole)", "bootstrap_naive": "  straightforward bootstrap: per-taxon loop",
+              "whole": "whole run, no figures"}
+    lines = [f"### analog benchmark, {scale} scale",
+             "",
+             f"{meta['n_fossil']:,} fossil occurrences, {meta['n_modern']:,} modern occurrences, "
+             f"{meta['n_taxa']:,} taxa, {meta['n_regions']:,} regions; engine `{args.engine}`; "
+             f"{os.cpu_count()} CPU cores, Python {platform.python_version()}; "
+             f"load average {load[0]:.1f} at start, {load[1]:.1f} at end (machine shared).",
+             "",
+             "| stage | rows | wall s | rows/s | peak RSS GiB | vs straightforward | vs read floor |",
+             "|---|---:|---:|---:|---:|---:|---:|"]
+    notes = []
+    for stage in [s for s in STAGES if s in results]:
+        r = results[stage]
+        if "error" in r:
+            lines.append(f"| {labels[stage]} | | {r['error']} | | | | |")
+            continue
+        sec, rows = r["seconds"], r["rows"]
+        gib = r["peak_rss_bytes"] / 2 ** 30
+        vs_naive = ""
+        if stage in naive_of and naive_of[stage] in results and "error" not in results[naive_of[stage]]:
+            base = results[naive_of[stage]]["seconds"]
+            ours = r["detail"]["extinction probability"] if stage == "trajectory" else sec
+            vs_naive = f"{base / ours:,.1f}x faster" + (" (bootstrap step)" if stage == "trajectory" else "")
+        vs_floor = f"{sec / floor:,.1f}x" if floor and stage != "floor" else ""
+        extra = " (est.)" if "measured_seconds" in r else ""
+        lines.append(f"| {labels[stage]} | {rows:,} | {_fmt_s(sec)}{extra} | {rows / sec:,.0f} | {gib:.2f} | "
+                     f"{vs_naive} | {vs_floor} |")
+        if r.get("note"):
+            notes.append(f"- {labels[stage].strip()}: {r['note']} (measured {r['measured_seconds']:.1f} s).")
+        if r.get("detail"):
+            parts = ", ".join(f"{k} {v:.1f} s" for k, v in r["detail"].items())
+            notes.append(f"- {labels[stage].strip()}: {parts}.")
+        if r.get("skipped"):
+            notes.append(f"- whole run: stages not run: {r['skipped']}.")
+    lines += ["", "Notes:"] + notes + [
+        "- Peak RSS: maximum resident set size of the fresh process that ran the stage (Python, libraries and "
+        "the stage's inputs included; `resource.getrusage`).",
+        "- Ratios are measured in this run. 'vs read floor' = stage time / time to read the needed input columns "
+        "once with pyarrow."]
+    return "\n".join(lines)
+
+
+def main(argv=None) -> int:
+    p = argparse.ArgumentParser(description="Time analog's stages on an invented national-scale study.")
+    p.add_argument("--scale", choices=tuple(SCALES), default="small")
+    p.add_argument("--cache", default=str(DEFAULT_CACHE), help="folder for the generated studies")
+    p.add_argument("--regenerate", action="store_true", help="rebuild the study even if cached")
+    p.add_argument("--stages", default=",".join(STAGES), help=f"comma-separated subset of {','.join(STAGES)}")
+    p.add_argument("--engine", choices=("local", "dask"), default="local")
+    p.add_argument("--skip-stages", default="", help="pipeline stages the whole run leaves out (e.g. analog)")
+    p.add_argument("--naive-points", type=int, default=1_000_000, help="points the straightforward join runs on")
+    p.add_argument("--naive-taxa", type=int, default=200, help="taxa the straightforward occupancy loop runs on")
+    p.add_argument("--naive-series", type=int, default=100, help="series the straightforward bootstrap runs on")
+    p.add_argument("--timeout", type=float, default=3 * 3600, help="seconds before a stage is stopped")
+    p.add_argument("--out", help="also write the Markdown table here")
+    p.add_argument("--worker", help=argparse.SUPPRESS)
+    p.add_argument("--data", help=argparse.SUPPRESS)
+    args = p.parse_args(argv)
+    args.skip_stages = [s for s in args.skip_stages.split(",") if s]
+    if args.worker:
+        _worker(args)
+        return 0
+    folder = ensure_data(args.scale, Path(args.cache), args.regenerate)
+    stages = [s.strip() for s in args.stages.split(",") if s.strip()]
+    bad = [s for s in stages if s not in STAGES]
+    if bad:
+        p.error(f"unknown stage(s) {bad}; choose from {list(STAGES)}")
+    load0 = os.getloadavg()[0]
+    results = {s: _run_stage(s, folder, args) for s in stages}
+    text = report(args.scale, folder, results, args, (load0, os.getloadavg()[0]))
+    print(text)
+    if args.out:
+        Path(args.out).write_text(text + "\n\n<!-- raw -->\n<!-- " + json.dumps(results) + " -->\n", encoding="utf-8")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
