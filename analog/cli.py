@@ -117,10 +117,12 @@ def _cmd_check(args) -> int:
     return EXIT_OK
 
 
-def _print_warnings(caught, study=None):
+def _print_warnings(caught, study=None, stage_warnings=()):
     msgs = [str(w.message) for w in caught if issubclass(w.category, AnalogWarning)]
     if study is not None:
         msgs += [m for m in study.warnings if m not in msgs]
+    # stage warnings are gathered by run_study (they also go to manifest.json)
+    msgs += [m for m in stage_warnings if m not in msgs]
     for m in msgs:
         print(f"warning: {m}", file=sys.stderr)
 
@@ -144,7 +146,7 @@ def _cmd_run(args, study_folder) -> int:
             target, written = write_outputs(run, args.out, figures=not args.no_figures, progress=prog.factory)
     elapsed = time.perf_counter() - t0
     if not args.quiet:
-        _print_warnings(caught, study)
+        _print_warnings(caught, study, run.warnings)
         for stage in run.stages_done:
             print(f"ran   {stage:<11} {run.timings.get(stage, 0):6.1f} s")
         for stage, why in run.skipped.items():

@@ -79,12 +79,19 @@ def _schema_problems(raw: dict, schema: dict, findings: Findings):
                     findings.add(STUDY_FILE, f"no {what}", f"the {what}" + (f" ({desc})" if desc else ""),
                                  f"add {what} under {where}" if path else f"add {what} to study.toml",
                                  column=f"{where} {key}" if path else f"[{key}]")
+        elif kind == "not" and not isinstance(err.instance, dict):
+            continue  # a sub-table written as a plain value: its type error says so
         elif kind == "not" and "required" in err.validator_value:
             key = err.validator_value["required"][0]
             trait_kind = err.instance.get("kind")
             findings.add(STUDY_FILE, f"option '{key}' for a {trait_kind} trait",
                          f"'{key}' only for the kinds that use it", f"remove '{key}' from {where}",
                          column=f"{where} {key}")
+        elif kind == "type" and err.validator_value == "object":
+            header = where.split(" ")[0] if path else where
+            findings.add(STUDY_FILE, f"{show(err.instance)} ({type(err.instance).__name__})",
+                         "a table of options", f"write it as a section: a line {header} followed by "
+                         f"key = value lines (see data_schemas/README.md)", column=where)
         elif kind == "type":
             findings.add(STUDY_FILE, f"{show(err.instance)} ({type(err.instance).__name__})",
                          f"a value of type {err.validator_value}", f"write {where} as a {err.validator_value}",
@@ -204,7 +211,8 @@ def _traits(section, findings: Findings) -> dict[str, TraitSpec]:
                          column=where)
             continue
         levels = spec.get("levels")
-        levels = tuple(str(v).strip() for v in levels) if isinstance(levels, list) and levels else None
+        # repeated levels are reported by the JSON Schema check; keep the first of each
+        levels = tuple(dict.fromkeys(str(v).strip() for v in levels)) if isinstance(levels, list) and levels else None
         reference = spec.get("reference")
         if isinstance(reference, str) and levels is not None and reference.strip() not in levels:
             findings.add(STUDY_FILE, f"reference {show(reference)}", f"one of the levels {list(levels)}",

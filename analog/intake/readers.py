@@ -150,6 +150,12 @@ def _read_text(path: Path, label: str, findings: Findings, wanted) -> TableFile 
         _one_column(columns[0], label, findings)
         return None
     keep = [r for r in raw_names if wanted is None or r.strip() in set(wanted)]
+    first_break = body.find(b"\n")
+    if first_break < 0 or not body[first_break + 1:].strip():
+        # a header line alone: the caller reports the table as empty
+        empty = pd.DataFrame({r: pd.Series([], dtype="str") for r in dict.fromkeys(keep)})
+        empty.columns = [str(c).strip() for c in empty.columns]
+        return TableFile(empty, columns, delimiter=delim, had_bom=had_bom)
     data = body if clean else text.encode("utf-8")
     try:
         try:

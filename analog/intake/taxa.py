@@ -122,7 +122,10 @@ def _trait_column(raw: pd.Series, spec: TraitSpec, schema: TableSchema, rows, fi
         n_classes = values.dropna().nunique()
     schema.rule("trait_informative")
     if n_classes < 2:
-        what = "no values" if n_classes == 0 else f"one class only ({show(values.dropna().iloc[0])})"
+        only = values.dropna().iloc[0] if n_classes else None
+        if spec.kind == "binary" and n_classes:
+            only = "true" if only else "false"  # stored as 1/0
+        what = "no values" if n_classes == 0 else f"one class only ({show(only)})"
         findings.warn(f"{file}: trait '{name}' has {what}; it is left out of the models")
         findings.drop("traits", "fewer than two classes", 1, [name])
         return values.reset_index(drop=True), None
