@@ -17,7 +17,7 @@ import pandas as pd
 
 from .errors import InputError, Problem
 
-__all__ = ["OutputFolder", "check_output_target", "frame_to_csv_bytes", "render_figure"]
+__all__ = ["OutputFolder", "check_output_target", "frame_to_csv_bytes", "render_figure", "tight_bbox"]
 
 FLOAT_FORMAT = "%.6g"
 
@@ -54,13 +54,35 @@ _FIXED_METADATA = {"png": {"Software": None}, "svg": {"Date": None, "Creator": N
                    "pdf": {"CreationDate": None, "ModDate": None, "Creator": None, "Producer": None}}
 
 
-def render_figure(fig, fmt: str, *, dpi: int = 300) -> bytes:
-    """Render a Figure to bytes in memory, with fixed metadata so reruns are byte-identical."""
+def tight_bbox(fig):
+    """The figure's tight bounding box (inches), padded as ``savefig`` pads it, from one layout pass.
+
+    Passing it to :func:`render_figure` for every format saves the layout pass that
+    ``bbox_inches='tight'`` makes per format (the text layout dominates render time).
+    """
+    import matplotlib
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    if not isinstance(fig.canvas, FigureCanvasAgg):
+        FigureCanvasAgg(fig)  # attaches itself to ``fig``
+    renderer = fig.canvas.get_renderer()
+    fig.draw(renderer)  # runs any layout engine and places every text
+    pad = matplotlib.rcParams["savefig.pad_inches"]
+    return fig.get_tightbbox(renderer).padded(pad)
+
+
+def render_figure(fig, fmt: str, *, dpi: int = 300, bbox=None) -> bytes:
+    """Render a Figure to bytes in memory, with fixed metadata so reruns are byte-identical.
+
+    ``bbox`` (inches, e.g. from :func:`tight_bbox`) is the area saved; by default the
+    tight bounding box, found by an extra layout pass.
+    """
     import matplotlib
 
     buf = io.BytesIO()
     with matplotlib.rc_context({"svg.hashsalt": "analog"}):
-        fig.savefig(buf, format=fmt, dpi=dpi, bbox_inches="tight", metadata=_FIXED_METADATA.get(fmt, {}))
+        fig.savefig(buf, format=fmt, dpi=dpi, bbox_inches="tight" if bbox is None else bbox,
+                    metadata=_FIXED_METADATA.get(fmt, {}))
     return buf.getvalue()
 
 
@@ -103,8 +125,9 @@ class OutputFolder:
         import matplotlib.pyplot as plt
 
         out = {}
+        bbox = tight_bbox(fig) if len(formats) > 1 else None
         for fmt in formats:
-            data = render_figure(fig, fmt, dpi=dpi)
+            data = render_figure(fig, fmt, dpi=dpi, bbox=bbox)
             self.write_bytes(f"{folder}/{stem}.{fmt}", data)
             out[fmt] = data
         plt.close(fig)

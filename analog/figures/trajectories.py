@@ -6,12 +6,15 @@ import pandas as pd
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
+from matplotlib.ticker import MaxNLocator
 
-from .style import CATEGORICAL, NO_DATA_COLOUR, TRAJECTORY_COLOUR, add_caption, figure_style
+from .style import (CATEGORICAL, NO_DATA_COLOUR, TRAJECTORY_COLOUR, add_caption, figure_style,
+                    fixed_label_positions, panel_title)
 
 __all__ = ["trajectory_panels", "null_comparison"]
 
 _NCOLS = 4
+_TICK_STEPS = [1, 2, 2.5, 5, 10]
 _CURVE_COLOUR = CATEGORICAL[0]
 _FLAG_COLOUR = CATEGORICAL[5]
 _STAT_TITLES = {"peak_position": ("Where the peak falls", "Peak position (0 = first bin, 1 = last bin)"),
@@ -23,11 +26,21 @@ def _expit(x):
     return 1.0 / (1.0 + np.exp(-np.asarray(x, dtype=float)))
 
 
-def _with_footer(size):
-    """A figure whose drawing area leaves a strip at the foot for the caption."""
-    fig = Figure(figsize=size, layout="constrained")
-    body, _ = fig.subfigures(2, 1, height_ratios=[size[1] - 0.3, 0.3])
-    return fig, body
+def _panel_axes(fig, nrows, ncols, *, left, right, top, bottom, width, height, gap_x, gap_y):
+    """A fixed grid of axes placed in inches: no layout engine, so a draw is one pass.
+
+    ``top`` and ``bottom`` are the bands above the first row and below the last; ``gap_y``
+    is the space between one row's axes and the next row's, ``gap_x`` between columns.
+    Positions are closed-form, so every render places the axes on the same numbers.
+    """
+    W, H = fig.get_size_inches()
+    axes = []
+    for r in range(nrows):
+        y0 = H - top - height - r * (height + gap_y)
+        for c in range(ncols):
+            x0 = left + c * (width + gap_x)
+            axes.append(fig.add_axes((x0 / W, y0 / H, width / W, height / H)))
+    return np.array(axes)
 
 
 def _pick_taxa(result, study, taxa, max_panels):
@@ -126,9 +139,19 @@ def trajectory_panels(result, study, *, taxa=None, max_panels: int = 24) -> dict
         n = len(ids)
         ncols = min(_NCOLS, n)
         nrows = int(np.ceil(n / ncols))
+        n_keys = 4 if key == "trajectories_extinct" else 5
+        legend_cols = n_keys if ncols >= 3 else 2
+        legend_rows = int(np.ceil(n_keys / legend_cols))
+        # inches: panel, its two-line title above, tick labels below; bands for heading and foot
+        width, height, title_h, ticks_h = 2.05, 1.45, 0.38, 0.3
+        left, right, head = 0.72, 0.2, 0.42
+        foot = 0.24 + 0.22 + 0.2 * legend_rows + 0.42   # tick labels, axis label, key, caption
+        size = (left + ncols * width + (ncols - 1) * 0.5 + right,
+                head + nrows * (title_h + height) + (nrows - 1) * ticks_h + foot)
         with figure_style():
-            fig, body = _with_footer((2.7 * ncols + 0.6, 2.15 * nrows + 1.0))
-            axes = np.atleast_1d(body.subplots(nrows, ncols, squeeze=False)).ravel()
+            fig = Figure(figsize=size)
+            axes = _panel_axes(fig, nrows, ncols, left=left, right=right, top=head + title_h, bottom=foot,
+                               width=width, height=height, gap_x=0.5, gap_y=ticks_h + title_h)
             for ax, taxon in zip(axes, ids):
                 rows = occ.loc[occ["taxon_id"] == taxon]
                 age = rows["bin_mid_ma"].to_numpy()
@@ -162,19 +185,24 @@ def trajectory_panels(result, study, *, taxa=None, max_panels: int = 24) -> dict
                 sub = reading or "too short to model"
                 if is_extant and pd.notna(risk.at[taxon, "trajectory_p"]):
                     sub += f"; score {risk.at[taxon, 'trajectory_p']:.2f}"
-                ax.set_title(f"{title}\n{sub}", fontsize=8, fontweight="normal", loc="left")
+                panel_title(ax, f"{title}\n{sub}", fontsize=8)
+                fixed_label_positions(ax)
                 ax.tick_params(labelsize=7)
-            for i, ax in enumerate(axes[:n]):
-                if i >= n - ncols:           # lowest panel of each column
-                    ax.set_xlabel("Age (Ma)", fontsize=8)
-                if i % ncols == 0:
-                    ax.set_ylabel("Occupancy\n(share of sampled units)", fontsize=8)
+                # four ticks a side: enough to read ages and shares, and fewer labels to lay out
+                ax.xaxis.set_major_locator(MaxNLocator(4, steps=_TICK_STEPS))
+                ax.yaxis.set_major_locator(MaxNLocator(4, steps=_TICK_STEPS))
             for ax in axes[n:]:
-                ax.set_visible(False)
+                ax.remove()
+            W, H = size
+            # one label per axis for the whole grid, instead of one per row or column
+            fig.text(0.12 / W, (H - head - 0.5 * (size[1] - head - foot)) / H, "Occupancy (share of sampled units)",
+                     rotation=90, ha="left", va="center", fontsize=8)
+            fig.text((left + 0.5 * (size[0] - left - right)) / W, (foot - 0.24) / H, "Age (Ma)",
+                     ha="center", va="top", fontsize=8)
             heading = {"trajectories_extant": "Occupancy histories of the extant taxa with the highest trajectory scores",
                        "trajectories_extinct": "Occupancy histories of the longest-lived extinct taxa",
                        "trajectories_selected": "Occupancy histories"}[key]
-            body.suptitle(heading, fontsize=10, fontweight="bold")
+            fig.text(0.5, 1 - 0.12 / H, heading, ha="center", va="top", fontsize=10, fontweight="bold")
             handles = [Line2D([], [], color=TRAJECTORY_COLOUR, marker="o", ms=4, lw=0.8, label="occupancy"),
                        Line2D([], [], color=TRAJECTORY_COLOUR, marker="o", ms=4, mfc="white", lw=0,
                               label=f"bin with < {p.min_sampled} sampled units"),
@@ -182,7 +210,8 @@ def trajectory_panels(result, study, *, taxa=None, max_panels: int = 24) -> dict
                        Line2D([], [], color="#555555", lw=0.7, ls=":", label=f"threshold ({thr:g})")]
             if key != "trajectories_extinct":
                 handles.append(Patch(color=NO_DATA_COLOUR, label=f"projection horizon ({horizon:g} Myr)"))
-            body.legend(handles=handles, loc="outside lower center", ncols=len(handles), fontsize=7)
+            fig.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, (foot - 0.44) / H),
+                       ncols=legend_cols, fontsize=7)
             add_caption(fig, "Scores rank lineages by their own occupancy history; the horizon is geological time.",
                         data_date=study.config.data_date)
         out[key] = fig
@@ -215,8 +244,10 @@ def null_comparison(result) -> dict[str, Figure]:
     per = table.loc[table["level"] == "taxon"]
     data = table.loc[table["level"] == "dataset"]
     with figure_style():
-        fig, body = _with_footer((10.5, 3.8))
-        axes = body.subplots(1, 3)
+        W, H = 10.5, 3.8
+        fig = Figure(figsize=(W, H))
+        axes = _panel_axes(fig, 1, 3, left=0.62, right=0.13, top=0.74, bottom=1.13, width=2.85, height=1.93,
+                           gap_x=0.6, gap_y=0.0)
         for ax, stat in zip(axes, _STAT_TITLES):
             null = samples.loc[(samples["statistic"] == stat) & (samples["group"] == "completed"), "value"]
             if not len(null):
@@ -240,12 +271,13 @@ def null_comparison(result) -> dict[str, Figure]:
             if len(row):
                 r = row.iloc[0]
                 title += f"\nmean {r['observed']:.2f} vs {r['null_mean']:.2f}; p = {r['p_value']:.2g}, KS p = {r['test_p_value']:.2g}"
-            ax.set_title(title, fontsize=8.5, fontweight="normal", loc="left")
+            panel_title(ax, title, fontsize=8.5)
             ax.set_xlabel(xlabel)
             ax.set_ylabel("Density")
+            fixed_label_positions(ax, x=-0.13, y=-0.16)
         handles, labels = axes[0].get_legend_handles_labels()
-        body.legend(handles, labels, loc="outside lower center", ncols=3, fontsize=7.5)
-        body.suptitle("Are completed occupancy histories more hat-shaped than pinned noise?", fontsize=10,
-                     fontweight="bold")
+        fig.legend(handles, labels, loc="upper center", bbox_to_anchor=(0.5, 0.62 / H), ncols=3, fontsize=7.5)
+        fig.text(0.5, 1 - 0.1 / H, "Are completed occupancy histories more hat-shaped than pinned noise?",
+                 ha="center", va="top", fontsize=10, fontweight="bold")
         add_caption(fig, "Null: Brownian excursions (norm of a 3-D Brownian bridge) with the same number of bins.")
     return {"noise_null": fig}
