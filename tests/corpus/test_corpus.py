@@ -440,6 +440,14 @@ def intervals_swapped(s, tmp):
         "hal1,Halvren warming,120,125,3.0,2.0,4.0,Halvren Traps,invented for a test,\n", encoding="utf-8")
 
 
+def intervals_no_warming(s, tmp):
+    s.config["inputs"]["intervals"] = "intervals.csv"
+    s.write()
+    (s.folder / "intervals.csv").write_text(
+        "interval_id,name,oldest_ma,youngest_ma,warming_low_c,warming_high_c,province,source,note\n"
+        "hal1,Halvren warming,125,120,2.0,4.0,Halvren Traps,invented for a test,\n", encoding="utf-8")
+
+
 def bad_extant(s, tmp):
     cell(s.taxa, 8, "extant", "maybe")
     s.write()
@@ -675,6 +683,8 @@ CASES = [
          (r"^regions\.gpkg:1:region_id: found no column 'region_id'.*fix: rename column 'regionid' to 'region_id'",)),
     Case("missing_taxon_reference_columns", no_taxon_reference, "error",
          (r"^fossil_occurrences\.csv:1:taxon_id / scientificName: found no columns for the taxon reference",)),
+    Case("missing_column_intervals", intervals_no_warming, "error",
+         (r"^intervals\.csv:1:warming_c: found no column 'warming_c'.*fix: ",)),
     Case("empty_taxa", header_only("taxa", "taxa"), "error",
          (r"^taxa\.csv:2:-: found a header but no data rows.*fix: fill the table",)),
     Case("empty_fossils", header_only("fossil_occurrences", "fossils"), "error",
@@ -701,7 +711,7 @@ CASES = [
          (r"regions\.gpkg holds 2 layers \(.*\); read 'regions'\. Set \[inputs\] regions_layer",)),
     Case("regions_geojson", geojson_regions, "ok"),
     # ---- what the stages see ----
-    Case("complete_separation", complete_separation, "warning", (), pipeline=True),
+    Case("complete_separation", complete_separation, "warning", (), pipeline=True, slow=True),
     Case("every_taxon_lost", every_taxon_lost, "warning", (), pipeline=True),
     Case("single_occurrence_taxon", single_occurrence, "ok", (), pipeline=True),
     Case("no_extant_taxa", no_extant, "error",
