@@ -38,7 +38,7 @@ def _parser() -> argparse.ArgumentParser:
     def add_run_options(sp):
         sp.add_argument("--out", required=True, metavar="DIR",
                         help="output folder (created; an earlier analog output there is replaced whole)")
-        sp.add_argument("--quiet", action="store_true", help="no progress bars; print only the final summary line")
+        sp.add_argument("--quiet", action="store_true", help="no progress bars; print only warnings and the final summary line")
         sp.add_argument("--no-figures", action="store_true", help="skip figures (and the briefing's images)")
         sp.add_argument("--debug", action="store_true", help="show a full traceback on an internal error")
         sp.add_argument("--engine", choices=("local", "dask"), default=None,
@@ -145,8 +145,8 @@ def _cmd_run(args, study_folder) -> int:
             run = run_study(study, progress=prog.factory, engine=engine)
             target, written = write_outputs(run, args.out, figures=not args.no_figures, progress=prog.factory)
     elapsed = time.perf_counter() - t0
+    _print_warnings(caught, study, run.warnings)  # warnings go to stderr even with --quiet
     if not args.quiet:
-        _print_warnings(caught, study, run.warnings)
         for stage in run.stages_done:
             print(f"ran   {stage:<11} {run.timings.get(stage, 0):6.1f} s")
         for stage, why in run.skipped.items():
