@@ -115,9 +115,22 @@ def _tau2_dl(y, v):
     return max(0.0, (q - (y.size - 1)) / c) if c > 0 else 0.0
 
 
+def _reml_loglik(tau2, y, v):
+    """Restricted log-likelihood of tau2 (up to a constant)."""
+    w = 1.0 / (v + tau2)
+    sw = np.sum(w)
+    mu = np.sum(w * y) / sw
+    return 0.5 * (np.sum(np.log(w)) - np.log(sw) - np.sum(w * (y - mu) ** 2))
+
+
 def _tau2_reml(y, v, start):
-    """Fisher scoring on the restricted log-likelihood, truncated at 0."""
-    tau2 = start
+    """Fisher scoring on the restricted log-likelihood, truncated at 0, with step halving.
+
+    A step is kept only if it raises the restricted log-likelihood (halved up to 30
+    times otherwise), so the iteration cannot oscillate; the iterate always climbs.
+    """
+    tau2 = float(start)
+    ll = _reml_loglik(tau2, y, v)
     for _ in range(_REML_MAX_ITER):
         w = 1.0 / (v + tau2)
         sw = np.sum(w)
@@ -128,11 +141,26 @@ def _tau2_reml(y, v, start):
         ypp_y = np.sum(w ** 2 * (y - mu) ** 2)
         tr_pp = np.sum(w ** 2) - 2.0 * np.sum(w ** 3) / sw + (np.sum(w ** 2) / sw) ** 2
         step = (ypp_y - tr_p) / tr_pp
-        new = max(0.0, tau2 + step)
+        for _half in range(30):
+            new = max(0.0, tau2 + step)
+            new_ll = _reml_loglik(new, y, v)
+            if new_ll >= ll - 1e-14 * (1.0 + abs(ll)):
+                break
+            step *= 0.5
+        else:
+            return tau2, True  # no ascent direction left: at the maximum within precision
         if abs(new - tau2) <= _REML_TOL * (1.0 + tau2):
             return new, True
-        tau2 = new
-    return tau2, False
+        tau2, ll = new, new_ll
+    # Scoring can crawl when the curvature changes fast near the optimum: finish with a
+    # bounded one-dimensional maximization (Brent) on an interval holding the maximum.
+    from scipy.optimize import minimize_scalar
+
+    top = 4.0 * (float(np.var(y)) + float(np.max(v))) + 2.0 * tau2 + 1.0
+    res = minimize_scalar(lambda t: -_reml_loglik(t, y, v), bounds=(0.0, top), method="bounded",
+                          options={"xatol": _REML_TOL})
+    best = min((tau2, float(res.x), 0.0), key=lambda t: -_reml_loglik(t, y, v))
+    return best, bool(res.success)
 
 
 def pool_random_effects(effects, variances, *, method="DL", hksj=False):

@@ -311,11 +311,10 @@ def test_dl_i2_equals_q_form(inputs):
     assert res.i2 == pytest.approx(expected, abs=1e-9)
 
 
-@pytest.mark.xfail(strict=True, reason="REML Fisher scoring for tau2 has no step control and can "
-                   "oscillate without settling (analog/stats/meta.py::_tau2_reml)")
 @given(meta_inputs(min_k=2))
-# smallest case found: scoring from the DL value 0 jumps between ~0 and ~0.18 for 200
-# iterations, ending at 0.056 while the restricted likelihood peaks near 0.087
+# smallest case found before step halving was added: scoring from the DL value 0 jumped
+# between ~0 and ~0.18 for 200 iterations, ending at 0.056 while the restricted likelihood
+# peaks near 0.087
 @example(inputs=(np.array([0.0, 1.0, 1.0, 1.0, 1.0]), np.array([0.125, 1.0, 1.0, 1.0, 1.0])))
 def test_reml_tau2_maximizes_restricted_likelihood(inputs):
     y, v = inputs
@@ -586,7 +585,8 @@ def test_hat_shape_rows_are_independent(items):
     for i, (h, t) in enumerate(items):
         alone = hat_shape(h, t).iloc[0]
         np.testing.assert_allclose(together.iloc[i][_SHAPE_COLS].to_numpy(dtype=float),
-                                   alone[_SHAPE_COLS].to_numpy(dtype=float), rtol=1e-12)
+                                   alone[_SHAPE_COLS].to_numpy(dtype=float),
+                                   rtol=1e-12, atol=1e-12)
 
 
 @given(series(nan=False), st.floats(-50, 50))
@@ -784,7 +784,8 @@ def pooled_inputs(draw, missing=True):
     m = draw(st.integers(1, 5))
     elements = st.one_of(probs, st.just(np.nan)) if missing else probs
     p = draw(hnp.arrays(float, (rows, m), elements=elements))
-    w = draw(hnp.arrays(float, m, elements=st.floats(0, 10)))
+    # subnormal weights (below 2.2e-308) lose the ratio precision the pool relies on
+    w = draw(hnp.arrays(float, m, elements=st.floats(0, 10, allow_subnormal=False)))
     assume(np.any(w > 0))
     return p, w
 
@@ -836,7 +837,7 @@ def score_tables(draw, missing=True):
     if missing:
         values = st.one_of(values, st.just(np.nan))
     s = draw(hnp.arrays(float, (n, m), elements=values))
-    w = draw(hnp.arrays(float, m, elements=st.floats(0, 5)))
+    w = draw(hnp.arrays(float, m, elements=st.floats(0, 5, allow_subnormal=False)))
     assume(np.any(w > 0))
     return s, w
 
