@@ -172,7 +172,7 @@ def _indices(regions, presence, records, combined_result, study, params, notes) 
 def _region_records(pos: np.ndarray, taxon_id: pd.Series, region_ids: np.ndarray) -> pd.DataFrame:
     """Records per (region, taxon) among assigned occurrences, sorted by region_id then taxon_id.
 
-    Counted on integer codes (one ``np.unique`` over region x taxon keys) rather than by
+    Counted on integer codes (one count or sort over region x taxon keys) rather than by
     grouping millions of strings; the order is the string order of both ids.
     """
     codes, uniques = pd.factorize(taxon_id)
@@ -195,7 +195,9 @@ def _region_records(pos: np.ndarray, taxon_id: pd.Series, region_ids: np.ndarray
         keys = np.flatnonzero(counts)
         counts = counts[keys]
     else:
-        keys, counts = np.unique(key, return_counts=True)
+        srt = np.sort(key)
+        first = np.flatnonzero(np.r_[True, srt[1:] != srt[:-1]])
+        keys, counts = srt[first], np.diff(np.r_[first, len(srt)])
     rpos = r_of_rank[keys // n_t]
     return pd.DataFrame({"region_id": pd.array(region_ids[rpos], dtype="str"),
                          "taxon_id": pd.array(taxa[keys % n_t], dtype="str"),

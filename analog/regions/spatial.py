@@ -181,8 +181,10 @@ class _BoundaryGrid:
         labels, n_groups = ndimage.label(~near)
         table = np.full((ny, nx), _NEAR_BOUNDARY, dtype=np.int32)
         if n_groups:
-            _, first = np.unique(labels.ravel(), return_index=True)
-            first = first[1:] if labels.ravel()[first[0]] == 0 else first  # label 0 = near a boundary
+            flat = labels.ravel()
+            first = np.full(n_groups + 1, len(flat), dtype=np.int64)   # first cell of each group
+            np.minimum.at(first, flat, np.arange(len(flat)))
+            first = first[1:]                                         # label 0 = near a boundary
             iy, ix = np.divmod(first, nx)
             centres = np.column_stack([x0 + (ix + 0.5) * dx, y0 + (iy + 0.5) * dy])
             shapely.prepare(geoms)
