@@ -60,13 +60,18 @@ def tight_bbox(fig):
     Passing it to :func:`render_figure` for every format saves the layout pass that
     ``bbox_inches='tight'`` makes per format (the text layout dominates render time).
     """
+    from contextlib import nullcontext
+
     import matplotlib
     from matplotlib.backends.backend_agg import FigureCanvasAgg
 
     if not isinstance(fig.canvas, FigureCanvasAgg):
         FigureCanvasAgg(fig)  # attaches itself to ``fig``
     renderer = fig.canvas.get_renderer()
-    fig.draw(renderer)  # runs any layout engine and places every text
+    # a draw that runs any layout engine and places every text but paints nothing (as savefig's own
+    # layout pass does)
+    with getattr(renderer, "_draw_disabled", nullcontext)():
+        fig.draw(renderer)
     pad = matplotlib.rcParams["savefig.pad_inches"]
     return fig.get_tightbbox(renderer).padded(pad)
 
@@ -79,11 +84,40 @@ def render_figure(fig, fmt: str, *, dpi: int = 300, bbox=None) -> bytes:
     """
     import matplotlib
 
+    if fmt == "png":
+        data = _png_bytes(fig, dpi=dpi, bbox=tight_bbox(fig) if bbox is None else bbox)
+        if data is not None:
+            return data
     buf = io.BytesIO()
     with matplotlib.rc_context({"svg.hashsalt": "analog"}):
         fig.savefig(buf, format=fmt, dpi=dpi, bbox_inches="tight" if bbox is None else bbox,
                     metadata=_FIXED_METADATA.get(fmt, {}))
     return buf.getvalue()
+
+
+def _png_bytes(fig, *, dpi: int, bbox) -> bytes | None:
+    """PNG of an opaque figure as an RGB image (no alpha channel); None to fall back to ``savefig``.
+
+    Matplotlib writes RGBA; dropping a constant alpha channel makes the file about 10 %
+    smaller and the compression, the slowest step of a PNG, about a third faster.
+    """
+    import numpy as np
+    from PIL import Image
+
+    buf = io.BytesIO()
+    fig.savefig(buf, format="rgba", dpi=dpi, bbox_inches=bbox)
+    raw = buf.getvalue()
+    # the canvas of a bbox_inches render is int(size * dpi) pixels (RendererAgg truncates)
+    width, height = int(bbox.width * dpi), int(bbox.height * dpi)
+    if width * height * 4 != len(raw):
+        return None
+    pixels = np.frombuffer(raw, dtype=np.uint8).reshape(height, width, 4)
+    if pixels[..., 3].min() < 255:
+        return None   # transparency drawn: keep matplotlib's RGBA file
+    out = io.BytesIO()
+    # no text chunks (as metadata={'Software': None}); pHYs carries the dpi as matplotlib writes it
+    Image.fromarray(np.ascontiguousarray(pixels[..., :3]), "RGB").save(out, format="png", dpi=(dpi, dpi))
+    return out.getvalue()
 
 
 class OutputFolder:

@@ -6,6 +6,7 @@ import pandas as pd
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Polygon
+from matplotlib.ticker import FuncFormatter, NullFormatter
 
 from ..study import TraitSpec
 from .style import ANALOG_COLOUR, COMBINED_COLOUR, add_caption, figure_style
@@ -113,6 +114,10 @@ def forest_plot(result, trait: str, spec: TraitSpec) -> Figure:
         hi = min(_OR_LIMITS[1], max(2.0, finite.max() * 1.3)) if finite.size else 4.0
         ax.set_xscale("log")
         ax.set_xlim(lo, hi)
+        # odds ratios written as plain numbers (0.1, 1, 10), not powers of ten; on a short axis
+        # (under 1.5 decades) the 2s and 5s are labelled too
+        ax.xaxis.set_major_formatter(FuncFormatter(_odds_label))
+        ax.xaxis.set_minor_formatter(FuncFormatter(_odds_label) if np.log10(hi / lo) < 1.5 else NullFormatter())
         ax.set_ylim(-0.8, n - 0.2)
         ax.axvline(1.0, color="#555555", lw=0.8, zorder=0)
         labels = []
@@ -183,6 +188,14 @@ def forest_plot(result, trait: str, spec: TraitSpec) -> Figure:
                          "counts are averages over age draws; weight = similarity of the interval's warming "
                          "to the scenario.")
     return fig
+
+
+def _odds_label(value, _pos=None) -> str:
+    """Tick label of an odds ratio: 0.01, 0.2, 1, 5, 100 (minor ticks other than 2s and 5s unlabelled)."""
+    mantissa = value / 10 ** np.floor(np.log10(value) + 1e-9)
+    if not any(abs(mantissa - m) < 1e-6 for m in (1, 2, 5)):
+        return ""
+    return f"{value:g}"
 
 
 def _arrows(ax, y, cl, ch, lo, hi, colour):
