@@ -53,9 +53,24 @@ def add_caption(fig, text: str, *, data_date: str | None = None):
     if data_date:
         parts.append(f"Data as of {data_date}.")
     parts.append(CAUTION)
-    text = wrap_to_width("  ".join(parts), 0.98 * fig.get_figwidth(), fontsize=6.5)
-    fig.text(0.01, 0.005, text, ha="left", va="bottom", fontsize=6.5, color="#444444")
+    text = "  ".join(parts)
+    art = fig.text(0.01, 0.005, text, ha="left", va="bottom", fontsize=6.5, color="#444444", wrap=True)
+    # matplotlib's own wrapping measures the line word by word at every draw; the lines are
+    # fixed here once instead (the Text keeps the whole caption as its text)
+    art._get_wrapped_text = _FixedLines(art, text, wrap_to_width(text, 0.98 * fig.get_figwidth(), fontsize=6.5))
     return fig
+
+
+class _FixedLines:
+    """Stands in for ``Text._get_wrapped_text``: the lines found once, while the text is unchanged."""
+
+    def __init__(self, art, text: str, lines: str):
+        self.art, self.text, self.lines = art, text, lines
+
+    def __call__(self) -> str:
+        if self.art.get_text() == self.text:
+            return self.lines
+        return type(self.art)._get_wrapped_text(self.art)
 
 
 def wrap_to_width(text: str, width_in: float, *, fontsize: float) -> str:
