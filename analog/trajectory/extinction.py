@@ -113,9 +113,10 @@ def bootstrap_probabilities(fitset: FitSet, *, threshold: float, horizon_bins: i
     probability at the *observed* current value, so the draws reflect uncertainty in
     the parameters and in the choice of model, not the future path itself.
 
-    Replicates are cut into chunks of about 100,000 simulated series; each chunk has its
-    own random stream spawned from ``rng``. The chunks depend only on the number of series
-    and of replicates, so the draws are the same on every engine.
+    The work is cut into chunks of about 100,000 simulated series: series sorted by length
+    are taken in groups, so a chunk's arrays are only as wide as its longest series, and each
+    chunk has its own random stream spawned from ``rng``. The chunks depend only on the
+    series and the number of replicates, so the draws are the same on every engine.
     """
     from ..engine import engine_scope, split_counts
 
@@ -124,27 +125,40 @@ def bootstrap_probabilities(fitset: FitSet, *, threshold: float, horizon_bins: i
     out = np.full((n, n_boot), np.nan)
     if n == 0 or n_boot == 0:
         return out
-    per_chunk = max(1, _ROWS_PER_CHUNK // n)
-    spans = split_counts(n_boot, per_chunk)
-    chunks = list(zip(spans, rng.spawn(len(spans))))
+    group = max(1, min(n, _ROWS_PER_CHUNK // n_boot))         # series per chunk
+    reps = min(n_boot, max(1, _ROWS_PER_CHUNK // group))      # replicates per chunk
+    by_length = np.argsort(batch.n, kind="stable")
+    series = [by_length[s:e] for s, e in split_counts(n, group)]
+    spans = split_counts(n_boot, reps)
+    work = [(idx, span) for idx in series for span in spans]
+    chunks = [(idx, span, gen) for (idx, span), gen in zip(work, rng.spawn(len(work)))]
     shared = (fitset, threshold, horizon_bins, step_myr, min_series_bins)
 
     def tick(done, total):
         if progress is not None:
-            progress("bootstrap", min(done * per_chunk, n_boot), n_boot)
+            progress("bootstrap", done, total)
 
     with engine_scope(engine) as eng:
         parts = eng.map(_bootstrap_chunk, chunks, shared=shared, progress=tick)
-    for (start, stop), avg in zip(spans, parts):
-        out[:, start:stop] = avg
+    for (idx, (start, stop), _), avg in zip(chunks, parts):
+        out[idx, start:stop] = avg
     out[fitset.weights.sum(axis=1) <= 0] = np.nan
     return out
 
 
+def _subset(fitset: FitSet, idx: np.ndarray) -> FitSet:
+    """The fits of some series, with the padding cut to the longest of them."""
+    b = fitset.batch
+    width = max(int(b.n[idx].max()), 1) if len(idx) else 0
+    batch = SeriesBatch(b.key[idx], b.t[idx, :width], b.y[idx, :width], b.n[idx], b.age0[idx])
+    return FitSet(batch, {m: f.take(idx) for m, f in fitset.fits.items()}, fitset.weights[idx], fitset.models)
+
+
 def _bootstrap_chunk(chunk, shared) -> np.ndarray:
-    """Averaged probabilities of one chunk of replicates, shape (N, replicates)."""
-    (start, stop), rng = chunk
-    fitset, threshold, horizon_bins, step_myr, min_series_bins = shared
+    """Averaged probabilities of one chunk: shape (series of the chunk, replicates of the chunk)."""
+    idx, (start, stop), rng = chunk
+    full, threshold, horizon_bins, step_myr, min_series_bins = shared
+    fitset = _subset(full, np.asarray(idx))
     batch = fitset.batch
     n = len(batch)
     b = stop - start

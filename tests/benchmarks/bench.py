@@ -476,7 +476,7 @@ def stage_bootstrap_naive(folder, args):
     for i in rng.choice(idx, k2, replace=False):
         shared = (one(i), thr, p.horizon_bins, occ.step_myr, p.min_series_bins)
         for _ in range(p.n_bootstrap):  # simulate one series, refit every model, score it
-            _bootstrap_chunk(((0, 1), rng), shared)
+            _bootstrap_chunk((np.array([0]), (0, 1), rng), shared)
     per_replicate = time.perf_counter() - t0
     n = len(idx)
     return {"seconds": per_replicate * n / k2, "measured_seconds": per_replicate,
