@@ -226,7 +226,9 @@ def _run(study, params, *, rng, progress, engine) -> TrajectoryResult:
     step("extinction probability", 2)
     thr = _logit(p.threshold_occupancy)
     is_ext = extant.reindex(batch.key).fillna(False).to_numpy(bool)
-    ext_idx = np.flatnonzero(is_ext & (fitset.weights.sum(axis=1) > 0))
+    n_occupied = table.loc[table["occupied"] > 0].groupby("taxon_id").size()
+    enough = n_occupied.reindex(batch.key).fillna(0).to_numpy() >= p.min_occupied_bins
+    ext_idx = np.flatnonzero(is_ext & enough & (fitset.weights.sum(axis=1) > 0))
     ext_fits = FitSet(batch.take(ext_idx), {m: f.take(ext_idx) for m, f in fitset.fits.items()},
                       fitset.weights[ext_idx], fitset.models)
     probs = model_probabilities(ext_fits, threshold=thr, horizon_bins=p.horizon_bins, step_myr=step_myr)
@@ -234,7 +236,8 @@ def _run(study, params, *, rng, progress, engine) -> TrajectoryResult:
     draws = bootstrap_probabilities(ext_fits, threshold=thr, horizon_bins=p.horizon_bins, step_myr=step_myr,
                                     n_boot=p.n_bootstrap, rng=r_boot, min_series_bins=p.min_series_bins,
                                     progress=progress, engine=engine)
-    risk, risk_draws = _risk_table(taxa, table, batch, fitset, labels, ext_idx, probs, avg, draws, p, step_myr)
+    risk, risk_draws = _risk_table(taxa, table, batch, fitset, labels, ext_idx, probs, avg, draws, p, step_myr,
+                                   n_occupied)
 
     step("noise null", 3)
     extinct_ids = taxa.loc[~taxa["extant"].astype(bool), "taxon_id"]
@@ -274,7 +277,7 @@ def _fits_table(fitset: FitSet, labels: np.ndarray, min_bins: int) -> pd.DataFra
     return frame[FIT_COLUMNS + ["n_fitted", "preferred", "reading"] + rest].reset_index(drop=True)
 
 
-def _risk_table(taxa, table, batch, fitset, labels, ext_idx, probs, avg, draws, p, step_myr):
+def _risk_table(taxa, table, batch, fitset, labels, ext_idx, probs, avg, draws, p, step_myr, n_occupied):
     level = p.interval_level
     ext_taxa = taxa.loc[taxa["extant"].astype(bool), ["taxon_id", "scientificName"]].reset_index(drop=True)
     keys = batch.key[ext_idx]
@@ -306,6 +309,10 @@ def _risk_table(taxa, table, batch, fitset, labels, ext_idx, probs, avg, draws, 
     notes = np.where(no_fossil, "no fossil occurrences: no trajectory estimate", notes)
     notes = np.where(short, [f"series of {n} bin(s) with data, fewer than needed ({p.min_series_bins}): "
                              "no trajectory estimate" for n in risk["n_bins"]], notes)
+    occ_bins = risk["taxon_id"].map(n_occupied).fillna(0).astype(int)
+    sparse = ~no_fossil & risk["trajectory_p"].isna() & (occ_bins < p.min_occupied_bins)
+    notes = np.where(sparse, [f"found in only {n} bin(s), fewer than needed ({p.min_occupied_bins}): "
+                              "no trajectory estimate" for n in occ_bins], notes)
     stale = risk["trajectory_p"].notna() & (risk["last_sampled_bin_ma"] > step_myr)
     notes = np.where(stale, [f"{n}; last sampled bin centred at {a:g} Ma" for n, a in
                              zip(notes, risk["last_sampled_bin_ma"])], notes)

@@ -48,6 +48,11 @@ class TrajectoryParams(Params):
     min_sampled: int = field(default=5, metadata={
         "min": 1, "max": 1_000_000,
         "doc": "Bins with fewer sampled units than this are flagged low_sample (kept, not hidden)."})
+    min_occupied_bins: int = field(default=3, metadata={
+        "min": 1, "max": 1000,
+        "doc": "Fewest bins in which a living taxon must actually be found before its trajectory is scored. "
+               "A taxon known from one or two old records followed by empty bins says little about its own "
+               "trajectory; it gets no trajectory score (its analog score still stands)."})
     min_series_bins: int = field(default=5, metadata={
         "min": 3, "max": 1000,
         "doc": "Shortest occupancy series (bins with data) that is modelled. Models with more parameters "
