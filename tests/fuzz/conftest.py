@@ -10,7 +10,7 @@ from hypothesis import HealthCheck, settings
 
 settings.register_profile(
     "fuzz",
-    max_examples=50,
+    max_examples=30,
     deadline=None,
     derandomize=True,
     database=None,   # derandomized runs need no example database; keep the checkout clean
