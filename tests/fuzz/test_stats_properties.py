@@ -542,7 +542,7 @@ def test_passage_decreases_with_drift_away(d, mu1, mu2, var, t):
 def test_passage_matches_inverse_gaussian(d, mu, var, t):
     # reference: scipy.stats.invgauss. The passage time towards the threshold is inverse
     # Gaussian with mean d/|mu| and shape d^2/var; drifting away, the same law scaled by the
-    # chance exp(-2 mu d / var) of ever arriving (Cox & Miller 1965, sec. 5.7)
+    # chance exp(-2 mu d / var) of ever arriving (Cox & Miller 1965, ch. 5; from memory)
     mean, shape = d / abs(mu), d**2 / var
     ref = stats.invgauss(mu=mean / shape, scale=shape).cdf(t) * min(1.0, np.exp(-2 * mu * d / var))
     assert first_passage_probability(d, mu, var, t) == pytest.approx(ref, rel=1e-7, abs=1e-10)
