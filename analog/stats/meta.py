@@ -123,6 +123,23 @@ def _reml_loglik(tau2, y, v):
     return 0.5 * (np.sum(np.log(w)) - np.log(sw) - np.sum(w * (y - mu) ** 2))
 
 
+def _global_check(tau2, y, v):
+    """The restricted likelihood can have two peaks (e.g. 0 and a large tau2); scoring finds
+    the one nearest its start. Compare with a coarse grid and refine the best grid point."""
+    from scipy.optimize import minimize_scalar
+
+    top = 4.0 * (float(np.var(y)) + float(np.max(v))) + 2.0 * tau2 + 1.0
+    grid = np.r_[0.0, np.geomspace(1e-8 * top, top, 80)]
+    lls = np.array([_reml_loglik(t, y, v) for t in grid])
+    i = int(np.argmax(lls))
+    if lls[i] <= _reml_loglik(tau2, y, v) + 1e-12 * (1.0 + abs(lls[i])):
+        return tau2
+    lo, hi = grid[max(i - 1, 0)], grid[min(i + 1, len(grid) - 1)]
+    res = minimize_scalar(lambda t: -_reml_loglik(t, y, v), bounds=(lo, hi), method="bounded",
+                          options={"xatol": _REML_TOL})
+    return max((grid[i], float(res.x)), key=lambda t: _reml_loglik(t, y, v))
+
+
 def _tau2_reml(y, v, start):
     """Fisher scoring on the restricted log-likelihood, truncated at 0, with step halving.
 
@@ -150,7 +167,7 @@ def _tau2_reml(y, v, start):
         else:
             return tau2, True  # no ascent direction left: at the maximum within precision
         if abs(new - tau2) <= _REML_TOL * (1.0 + tau2):
-            return new, True
+            return _global_check(new, y, v), True
         tau2, ll = new, new_ll
     # Scoring can crawl when the curvature changes fast near the optimum: finish with a
     # bounded one-dimensional maximization (Brent) on an interval holding the maximum.

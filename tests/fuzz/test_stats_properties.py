@@ -353,9 +353,6 @@ def test_reml_tau2_is_a_local_maximum(inputs):
         assert here >= _reml_loglik(t, y, v) - 1e-10 * (1 + abs(here))
 
 
-@pytest.mark.xfail(strict=True, reason="the restricted likelihood can have two maxima; ascent "
-                   "from the DL value stops at the nearer one (analog/stats/meta.py, "
-                   "_tau2_reml), not at the global maximum that defines REML")
 @given(meta_inputs(min_k=2))
 # smallest case found (a deep run): three precise estimates at 0, five imprecise ones at 5.
 # The restricted likelihood is -13.09 at tau2 = 0 (a boundary maximum, where the fit
