@@ -10,7 +10,10 @@ import io
 import json
 import os
 import shutil
+import signal
 import tempfile
+import threading
+from contextlib import contextmanager
 from pathlib import Path
 
 import pandas as pd
@@ -120,6 +123,20 @@ def _png_bytes(fig, *, dpi: int, bbox) -> bytes | None:
     return out.getvalue()
 
 
+@contextmanager
+def _signals_held():
+    """Block SIGINT/SIGTERM for a few critical system calls; they are delivered afterwards."""
+    held = {signal.SIGINT, signal.SIGTERM}
+    can_mask = hasattr(signal, "pthread_sigmask") and threading.current_thread() is threading.main_thread()
+    if can_mask:
+        previous = signal.pthread_sigmask(signal.SIG_BLOCK, held)
+    try:
+        yield
+    finally:
+        if can_mask:
+            signal.pthread_sigmask(signal.SIG_SETMASK, previous)
+
+
 class OutputFolder:
     """Collects files in a temporary sibling folder; ``commit()`` swaps it into place.
 
@@ -131,7 +148,8 @@ class OutputFolder:
         self.target = Path(target).resolve()
         check_output_target(self.target)
         self.target.parent.mkdir(parents=True, exist_ok=True)
-        self.tmp = Path(tempfile.mkdtemp(prefix=f".{self.target.name}.partial-", dir=self.target.parent))
+        with _signals_held():  # the temporary folder exists only once the caller can clean it up
+            self.tmp = Path(tempfile.mkdtemp(prefix=f".{self.target.name}.partial-", dir=self.target.parent))
         self.written: list[str] = []
 
     # -- writing -------------------------------------------------------------------------------
@@ -173,19 +191,24 @@ class OutputFolder:
 
     # -- committing ----------------------------------------------------------------------------
     def commit(self) -> Path:
-        """Swap the finished folder into place; an earlier output folder is replaced whole."""
-        backup = None
-        if self.target.exists():
-            backup = self.target.with_name(f".{self.target.name}.previous-{os.getpid()}")
-            os.rename(self.target, backup)
-        try:
-            os.rename(self.tmp, self.target)
-        except BaseException:
+        """Swap the finished folder into place; an earlier output folder is replaced whole.
+
+        SIGINT and SIGTERM are held back during the two renames, so an interruption
+        lands before the swap (earlier output intact) or after it (new output complete).
+        """
+        with _signals_held():
+            backup = None
+            if self.target.exists():
+                backup = self.target.with_name(f".{self.target.name}.previous-{os.getpid()}")
+                os.rename(self.target, backup)
+            try:
+                os.rename(self.tmp, self.target)
+            except BaseException:
+                if backup is not None:
+                    os.rename(backup, self.target)
+                raise
             if backup is not None:
-                os.rename(backup, self.target)
-            raise
-        if backup is not None:
-            shutil.rmtree(backup, ignore_errors=True)
+                shutil.rmtree(backup, ignore_errors=True)
         return self.target
 
     def discard(self) -> None:
