@@ -7,8 +7,11 @@ A notebook user can call the stages one by one instead; see DEVELOPERS.md.
 from __future__ import annotations
 
 import datetime as _dt
+import functools
 import importlib
+import os
 import platform
+import sys
 import time
 import warnings
 from dataclasses import dataclass, field
@@ -20,7 +23,7 @@ from .errors import AnalogWarning
 from .rng import stage_generators
 from .study import Study
 
-__all__ = ["RunResult", "run_study", "write_outputs", "STAGE_ORDER"]
+__all__ = ["RunResult", "run_study", "write_outputs", "render_figures", "STAGE_ORDER"]
 
 STAGE_ORDER = ("analog", "trajectory", "combine", "regions")
 
@@ -40,6 +43,7 @@ class RunResult:
     skipped: dict[str, str] = field(default_factory=dict)  # stage -> why it did not run
     warnings: list[str] = field(default_factory=list)
     timings: dict[str, float] = field(default_factory=dict)
+    cpu_timings: dict[str, float] = field(default_factory=dict)  # stage -> CPU seconds of this process
     started_at: str = ""
 
     def tables(self) -> dict[str, Any]:
@@ -110,7 +114,7 @@ def _run_stages(study: Study, *, progress, stages, engine) -> RunResult:
         return progress(stage) if progress is not None else None
 
     def timed(stage, fn):
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), time.process_time()
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", AnalogWarning)
             result = fn()
@@ -120,6 +124,7 @@ def _run_stages(study: Study, *, progress, stages, engine) -> RunResult:
             else:
                 warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
         run.timings[stage] = time.perf_counter() - t0
+        run.cpu_timings[stage] = time.process_time() - c0
         run.stages_done.append(stage)
         return result
 
@@ -159,37 +164,175 @@ def _run_stages(study: Study, *, progress, stages, engine) -> RunResult:
     return run
 
 
-def _figures(run: RunResult) -> dict[str, tuple[Any, tuple[str, ...]]]:
-    """stem -> (Figure, formats). Maps also get PDF."""
-    figs: dict[str, tuple[Any, tuple[str, ...]]] = {}
+def _figure_jobs(run: RunResult) -> list[tuple[str, Callable[[], dict[str, Any]], tuple[str, ...]]]:
+    """One ``(stem, draw, formats)`` per figure, in output order; ``draw()`` returns ``{stem: Figure}``
+    (empty when that figure has nothing to show). Maps also get PDF."""
+    jobs: list[tuple[str, Callable[[], dict[str, Any]], tuple[str, ...]]] = []
     fig_params = run.study.config.params("figures") if "figures" in run.study.config.sections else None
     base = tuple(getattr(fig_params, "formats", ("png", "svg")))
+
+    def add(stems, fn, formats, *args):
+        for stem in stems:
+            jobs.append((stem, functools.partial(fn, *args, only=(stem,)), formats))
+
     if run.analog is not None:
         forest = _optional("analog.figures.forest", "forest_plots")
         if forest is not None:
-            for k, f in forest(run.analog, run.study.traits).items():
-                figs[k] = (f, base)
+            add([f"forest_{t}" for t in run.study.traits], forest, base, run.analog, run.study.traits)
     if run.trajectory is not None:
-        for name in ("trajectory_panels", "null_comparison"):
-            fn = _optional("analog.figures.trajectories", name)
-            if fn is None:
-                continue
-            out = fn(run.trajectory, run.study) if name == "trajectory_panels" else fn(run.trajectory)
-            for k, f in out.items():
-                figs[k] = (f, base)
+        panels = _optional("analog.figures.trajectories", "trajectory_panels")
+        if panels is not None:
+            add(["trajectories_extant", "trajectories_extinct"], panels, base, run.trajectory, run.study)
+        null = _optional("analog.figures.trajectories", "null_comparison")
+        if null is not None:
+            jobs.append(("noise_null", functools.partial(null, run.trajectory), base))
     if run.combined is not None:
-        ranking = importlib.import_module("analog.figures.ranking") if _optional(
-            "analog.figures.ranking", "rank_scatter") else None
+        ranking = _optional("analog.figures.ranking", "ranking_figures")
         if ranking is not None:
-            for k, f in ranking.ranking_figures(run).items():
-                figs[k] = (f, base)
+            add(["rank_scatter", "top_taxa"], ranking, base, run)
     if run.regions is not None:
-        maps = importlib.import_module("analog.figures.maps") if _optional(
-            "analog.figures.maps", "risk_map") else None
+        maps = _optional("analog.figures.maps", "map_figures")
         if maps is not None:
-            for k, f in maps.map_figures(run).items():
-                figs[k] = (f, tuple(dict.fromkeys(base + ("pdf",))))
-    return figs
+            add(["risk_map", "risk_map_by_line", "risk_difference_map"], maps, tuple(dict.fromkeys(base + ("pdf",))),
+                run)
+    return jobs
+
+
+def _figures(run: RunResult) -> dict[str, tuple[Any, tuple[str, ...]]]:
+    """stem -> (Figure, formats), every figure drawn here. Maps also get PDF."""
+    return {k: (f, formats) for _, draw, formats in _figure_jobs(run) for k, f in draw().items()}
+
+
+def _draw_and_render(draw, formats, dpi) -> dict[str, dict[str, bytes]]:
+    """Draw one job's figures and render each format; stem -> format -> bytes."""
+    import matplotlib.pyplot as plt
+
+    from .output import render_figure, tight_bbox
+
+    out = {}
+    for stem, fig in draw().items():
+        bbox = tight_bbox(fig) if len(formats) > 1 else None  # one layout pass for all formats
+        out[stem] = {fmt: render_figure(fig, fmt, dpi=dpi, bbox=bbox) for fmt in formats}
+        plt.close(fig)
+    return out
+
+
+def _claim(counter) -> int:
+    with counter.get_lock():
+        k = counter.value
+        counter.value += 1
+    return k
+
+
+def _figure_worker(jobs, order, dpi, counter, conn) -> None:
+    """Second process: claim jobs until none are left, then send everything drawn.
+
+    Ctrl-C and SIGTERM end it silently (the parent handles the interruption and stops it);
+    any error leaves the rest of the figures to the parent, which reports errors itself.
+    """
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    done = {}
+    try:
+        while (k := _claim(counter)) < len(order):
+            i = order[k]
+            done[i] = _draw_and_render(jobs[i][1], jobs[i][2], dpi)
+    except Exception:  # noqa: BLE001 - the parent draws whatever is missing
+        pass
+    try:
+        conn.send(done)
+    except Exception:  # noqa: BLE001 - the parent has gone or stopped listening
+        pass
+    finally:
+        conn.close()
+
+
+def _fork_context():
+    """A fork-based multiprocessing context on Linux, else None (figures are then drawn in this process).
+
+    Fork lets the second process inherit the run and the figure functions without pickling
+    them; it is used only on Linux, where it is the long-standing default.
+    """
+    import multiprocessing
+
+    if not sys.platform.startswith("linux") or "fork" not in multiprocessing.get_all_start_methods():
+        return None
+    if multiprocessing.current_process().daemon:
+        return None  # daemonic processes may not have children
+    return multiprocessing.get_context("fork")
+
+
+def _default_workers() -> int:
+    try:
+        cpus = len(os.sched_getaffinity(0))
+    except AttributeError:  # not on every platform
+        cpus = os.cpu_count() or 1
+    return min(2, cpus)
+
+
+def render_figures(run: RunResult, *, dpi: int = 300, workers: int | None = None,
+                   progress: Callable[[str, int, int], None] | None = None) -> dict[str, dict[str, bytes]]:
+    """Draw and render every figure of a run: stem -> format -> bytes, in output order.
+
+    With ``workers=2`` (the default where two CPUs are available, on Linux) a second,
+    forked process takes figures from the same queue, longest first; the bytes are the same
+    as when one process draws everything. Anything the second process did not deliver is
+    drawn here.
+    """
+    jobs = _figure_jobs(run)
+    # longest first (small multiples), so the two processes finish close together
+    order = sorted(range(len(jobs)), key=lambda i: not jobs[i][0].startswith("trajectories"))
+    results: dict[int, dict[str, dict[str, bytes]]] = {}
+    n_done = 0
+
+    def step(i):
+        nonlocal n_done
+        results[i] = _draw_and_render(jobs[i][1], jobs[i][2], dpi)
+        n_done += 1
+        if progress is not None:
+            progress("figures", n_done, len(jobs))
+
+    workers = _default_workers() if workers is None else int(workers)
+    ctx = _fork_context() if workers > 1 and len(jobs) > 1 else None
+    if ctx is None:
+        for i in order:
+            step(i)
+    else:
+        counter = ctx.Value("i", 0)
+        receive, send = ctx.Pipe(duplex=False)
+        for stream in (sys.stdout, sys.stderr):  # so the child cannot write the parent's pending output again
+            if stream is not None:
+                stream.flush()
+        proc = ctx.Process(target=_figure_worker, args=(jobs, order, dpi, counter, send), daemon=True)
+        proc.start()
+        send.close()
+        try:
+            while (k := _claim(counter)) < len(order):
+                step(order[k])
+            try:
+                theirs = receive.recv()
+            except EOFError:  # the second process died: its figures are drawn below
+                theirs = {}
+            proc.join()
+        finally:
+            receive.close()
+            if proc.is_alive():
+                proc.terminate()
+                proc.join()
+        for i, value in theirs.items():
+            results[i] = value
+            n_done += 1
+            if progress is not None:
+                progress("figures", n_done, len(jobs))
+        for i in order:
+            if i not in results:
+                step(i)
+    rendered: dict[str, dict[str, bytes]] = {}
+    for i in range(len(jobs)):
+        rendered.update(results[i])
+    return rendered
 
 
 def library_versions() -> dict[str, str]:
@@ -236,8 +379,13 @@ def build_manifest(run: RunResult, written: list[str]) -> dict:
 
 
 def write_outputs(run: RunResult, out: str | Path, *, figures: bool = True, briefing: bool = True,
-                  progress: ProgressFactory | None = None) -> tuple[Path, list[str]]:
-    """Write every table, figure, the briefing and manifest.json into ``out`` atomically."""
+                  progress: ProgressFactory | None = None,
+                  figure_workers: int | None = None) -> tuple[Path, list[str]]:
+    """Write every table, figure, the briefing and manifest.json into ``out`` atomically.
+
+    ``figure_workers`` processes draw the figures (default: 2 where two CPUs are available,
+    on Linux; 1 = all in this process); the files are the same either way.
+    """
     from .output import OutputFolder
 
     with OutputFolder(out) as folder:
@@ -249,12 +397,11 @@ def write_outputs(run: RunResult, out: str | Path, *, figures: bool = True, brie
         dpi = int(getattr(fig_params, "dpi", 300))
         rendered: dict[str, dict[str, bytes]] = {}
         if figures:
-            figs = _figures(run)
-            cb = progress("figures") if progress else None
-            for i, (stem, (fig, formats)) in enumerate(figs.items()):
-                rendered[stem] = folder.write_figure(stem, fig, formats=formats, dpi=dpi)
-                if cb:
-                    cb("figures", i + 1, len(figs))
+            rendered = render_figures(run, dpi=dpi, workers=figure_workers,
+                                      progress=progress("figures") if progress else None)
+            for stem, formats in rendered.items():
+                for fmt, data in formats.items():
+                    folder.write_bytes(f"figures/{stem}.{fmt}", data)
         if briefing:
             build = _optional("analog.briefing", "build_briefing")
             if build is not None:

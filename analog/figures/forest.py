@@ -16,7 +16,7 @@ __all__ = ["forest_plots", "forest_plot"]
 _OR_LIMITS = (1e-2, 1e2)   # odds ratios beyond these are drawn as arrows at the edge
 
 
-def forest_plots(result, traits: dict[str, TraitSpec]) -> dict[str, Figure]:
+def forest_plots(result, traits: dict[str, TraitSpec], *, only=None) -> dict[str, Figure]:
     """One forest plot per trait, keyed ``forest_<trait>``.
 
     Parameters
@@ -25,6 +25,8 @@ def forest_plots(result, traits: dict[str, TraitSpec]) -> dict[str, Figure]:
         From :func:`analog.analogs.run_analog`.
     traits : dict of str -> TraitSpec
         The study's traits (for display names).
+    only : collection of str, optional
+        Keys to draw (default: all).
 
     Returns
     -------
@@ -36,7 +38,8 @@ def forest_plots(result, traits: dict[str, TraitSpec]) -> dict[str, Figure]:
         return {}
     out = {}
     for name in [t for t in traits if (sel["trait"] == t).any()]:
-        out[f"forest_{name}"] = forest_plot(result, name, traits[name])
+        if only is None or f"forest_{name}" in only:
+            out[f"forest_{name}"] = forest_plot(result, name, traits[name])
     return out
 
 

@@ -32,17 +32,17 @@ _COLUMNS = {"mean_p": {"combined": "mean_combined_p", "analog": "analog_mean_p",
 _TITLE_H, _FOOT_H = 0.55, 0.6   # inches above and below the maps
 
 
-def map_figures(run) -> dict:
+def map_figures(run, *, only=None) -> dict:
     """All maps of a pipeline run, keyed by file stem.
 
-    ``run`` is an :class:`analog.pipeline.RunResult` with ``regions`` and ``study``.
+    ``run`` is an :class:`analog.pipeline.RunResult` with ``regions`` and ``study``;
+    ``only`` (a collection of stems) draws just those.
     """
     study = run.study
     params = study.config.sections.get("figures") or PARAMS()
     kw = {"context": study.context, "data_date": study.config.data_date, "params": params}
-    return {"risk_map": risk_map(run.regions, **kw),
-            "risk_map_by_line": side_by_side_maps(run.regions, **kw),
-            "risk_difference_map": difference_map(run.regions, **kw)}
+    draw = {"risk_map": risk_map, "risk_map_by_line": side_by_side_maps, "risk_difference_map": difference_map}
+    return {stem: fn(run.regions, **kw) for stem, fn in draw.items() if only is None or stem in only}
 
 
 # -- public figures ------------------------------------------------------------------------------

@@ -17,15 +17,17 @@ from .style import (ANALOG_COLOUR, TIER_COLOURS, TIER_NAMES, TRAJECTORY_COLOUR, 
 __all__ = ["ranking_figures", "rank_scatter", "top_taxa_bars"]
 
 
-def ranking_figures(run) -> dict:
+def ranking_figures(run, *, only=None) -> dict:
     """Both ranking charts of a pipeline run, keyed by file stem.
 
-    ``run`` is an :class:`analog.pipeline.RunResult` with ``combined`` and ``study``.
+    ``run`` is an :class:`analog.pipeline.RunResult` with ``combined`` and ``study``;
+    ``only`` (a collection of stems) draws just those.
     """
     study = run.study
     params = study.config.sections.get("figures") or PARAMS()
     kw = {"data_date": study.config.data_date, "params": params}
-    return {"rank_scatter": rank_scatter(run.combined, **kw), "top_taxa": top_taxa_bars(run.combined, **kw)}
+    draw = {"rank_scatter": rank_scatter, "top_taxa": top_taxa_bars}
+    return {stem: fn(run.combined, **kw) for stem, fn in draw.items() if only is None or stem in only}
 
 
 def rank_scatter(combined_result, *, data_date: str | None = None, params: FigureParams | None = None):

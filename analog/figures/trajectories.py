@@ -96,7 +96,7 @@ def _model_curve(result, taxon, model, first_age, last_age, ahead):
     return ages, _expit(val), None, None
 
 
-def trajectory_panels(result, study, *, taxa=None, max_panels: int = 24) -> dict[str, Figure]:
+def trajectory_panels(result, study, *, taxa=None, max_panels: int = 24, only=None) -> dict[str, Figure]:
     """Small multiples of occupancy histories with the preferred model's curve.
 
     Parameters
@@ -111,6 +111,8 @@ def trajectory_panels(result, study, *, taxa=None, max_panels: int = 24) -> dict
         (``trajectories_extant``) and the longest completed histories
         (``trajectories_extinct``).
     max_panels : int, default=24
+    only : collection of str, optional
+        Keys to draw (default: all).
 
     Returns
     -------
@@ -136,6 +138,8 @@ def trajectory_panels(result, study, *, taxa=None, max_panels: int = 24) -> dict
     horizon = p.horizon_bins * result.step_myr
     out = {}
     for key, ids in _pick_taxa(result, study, taxa, max_panels).items():
+        if only is not None and key not in only:
+            continue
         n = len(ids)
         ncols = min(_NCOLS, n)
         nrows = int(np.ceil(n / ncols))
