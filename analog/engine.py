@@ -111,8 +111,8 @@ class DaskEngine(Engine):
     Notes
     -----
     Shared data are scattered to every worker once per :meth:`map` call
-    (``Client.scatter(..., broadcast=True)``); chunks are submitted with
-    ``Client.map`` and gathered in order. Workers must run the same versions of
+    (``Client.scatter(..., broadcast=True)``), the chunks are scattered, and the
+    function is mapped over them with ``Client.map``; results are gathered in order. Workers must run the same versions of
     analog, numpy, pandas and shapely as this process for results to match the
     local engine bit for bit.
     """
@@ -150,7 +150,9 @@ class DaskEngine(Engine):
         # wrapped in a list so a tuple or list is sent as one object, not scattered item by item
         shared_ref = (self.client.scatter([shared], broadcast=True, hash=False)[0]
                       if shared is not None else None)
-        futures = self.client.map(fn, chunks, [shared_ref] * len(chunks), pure=False)
+        # chunks are sent to the workers as data, not inside the task graph
+        chunk_refs = self.client.scatter(chunks, hash=False)
+        futures = self.client.map(fn, chunk_refs, [shared_ref] * len(chunks), pure=False)
         try:
             done = 0
             for _ in as_completed(futures, loop=self.client.loop):
@@ -159,7 +161,7 @@ class DaskEngine(Engine):
                     progress(done, len(chunks))
             return self.client.gather(futures)
         finally:
-            for f in futures:
+            for f in futures + chunk_refs:
                 f.release()
             if shared_ref is not None:
                 shared_ref.release()
