@@ -17,7 +17,7 @@ from matplotlib.patches import Patch, Rectangle
 from matplotlib.transforms import Bbox
 
 from .params import PARAMS, FigureParams
-from .style import (CONTEXT_FILL, CONTEXT_LINE, DIFFERENCE_CMAP, NO_DATA_COLOUR, NO_DATA_EDGE, NO_DATA_HATCH,
+from .style import (short_label, CONTEXT_FILL, CONTEXT_LINE, DIFFERENCE_CMAP, NO_DATA_COLOUR, NO_DATA_EDGE, NO_DATA_HATCH,
                     REGION_EDGE, SEQUENTIAL, add_caption, figure_style, place_labels)
 
 __all__ = ["map_figures", "risk_map", "side_by_side_maps", "difference_map", "region_inset", "MAP_UNITS"]
@@ -301,7 +301,7 @@ class _MapData:
 
     def labels(self, ax, values, flagged, obstacles, *, with_values: bool, fontsize: float, signed: bool = False):
         field = "name" if self.params.label_field == "name" else "region_id"
-        names = self.layer[field].astype(str).to_numpy()
+        names = [short_label(n, 28) for n in self.layer[field].astype(str)]
         pts = self.layer.geometry.representative_point()
         anchors = np.column_stack([pts.x.to_numpy(), pts.y.to_numpy()])
         texts = []

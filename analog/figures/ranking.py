@@ -11,7 +11,7 @@ from matplotlib.transforms import Bbox
 
 from ..combine.compare import paired_ranks
 from .params import PARAMS, FigureParams
-from .style import (ANALOG_COLOUR, TIER_COLOURS, TIER_NAMES, TRAJECTORY_COLOUR, add_caption, figure_style,
+from .style import (short_label, ANALOG_COLOUR, TIER_COLOURS, TIER_NAMES, TRAJECTORY_COLOUR, add_caption, figure_style,
                     place_labels)
 
 __all__ = ["ranking_figures", "rank_scatter", "top_taxa_bars"]
@@ -89,7 +89,7 @@ def rank_scatter(combined_result, *, data_date: str | None = None, params: Figur
             r = fig.canvas.get_renderer()
             corner = [t.get_window_extent(r) for t in ax.texts]
             dots = [Bbox([[x - 4, y - 4], [x + 4, y + 4]]) for x, y in pts]
-            place_labels(ax, anchors, named["scientificName"].astype(str).tolist(), obstacles=dots + corner,
+            place_labels(ax, anchors, [short_label(n, 28) for n in named["scientificName"].astype(str)], obstacles=dots + corner,
                          fontsize=7, style="italic", anchor_dot=False)
 
         handles = [Patch(facecolor=TIER_COLOURS[t], edgecolor="#333333", linewidth=0.45, label=t)
@@ -148,7 +148,7 @@ def top_taxa_bars(combined_result, *, data_date: str | None = None, params: Figu
         ax.scatter(top["trajectory_p"], y, marker="D", s=14, facecolor=TRAJECTORY_COLOUR, edgecolor="white",
                    linewidths=0.5, zorder=4, clip_on=False)
         ax.set_yticks(y)
-        ax.set_yticklabels([f"{i + 1}. {name}" for i, name in enumerate(top["scientificName"].astype(str))],
+        ax.set_yticklabels([f"{i + 1}. {short_label(name)}" for i, name in enumerate(top["scientificName"].astype(str))],
                            fontstyle="italic", fontsize=7.5)
         ax.invert_yaxis()
         xmax = np.nanmax(np.r_[top["combined_high"], top["analog_p"], top["trajectory_p"], 0.05])

@@ -35,6 +35,15 @@ CAUTION = ("Relative vulnerability from deep-time evidence; not a forecast or a 
            "assessment. Defer to official assessments and expert review.")
 
 
+def short_label(text, max_chars: int = 36) -> str:
+    """A name cut to ``max_chars`` characters with an ellipsis, for labels in figures.
+
+    Tables and the briefing keep full names; a figure cannot grow to fit a 1,000-character name.
+    """
+    text = str(text)
+    return text if len(text) <= max_chars else text[: max_chars - 1].rstrip() + "\u2026"
+
+
 def style_path():
     """Path of the shipped matplotlib style sheet (maps/analog.mplstyle)."""
     return resource_dir("maps") / "analog.mplstyle"

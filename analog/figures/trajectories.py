@@ -8,7 +8,7 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 from matplotlib.ticker import MaxNLocator
 
-from .style import (CATEGORICAL, NO_DATA_COLOUR, TRAJECTORY_COLOUR, add_caption, figure_style,
+from .style import (short_label, CATEGORICAL, NO_DATA_COLOUR, TRAJECTORY_COLOUR, add_caption, figure_style,
                     fixed_label_positions, panel_title)
 
 __all__ = ["trajectory_panels", "null_comparison"]
@@ -185,7 +185,7 @@ def trajectory_panels(result, study, *, taxa=None, max_panels: int = 24, only=No
                 ax.set_xlim(hi_age, lo_age)
                 top = np.nanmax(val) if np.isfinite(val).any() else thr
                 ax.set_ylim(0, max(top * 1.15, thr * 2, 0.02))
-                title = names.get(taxon, taxon)
+                title = short_label(names.get(taxon, taxon), 30)
                 sub = reading or "too short to model"
                 if is_extant and pd.notna(risk.at[taxon, "trajectory_p"]):
                     sub += f"; score {risk.at[taxon, 'trajectory_p']:.2f}"

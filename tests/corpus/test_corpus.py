@@ -720,8 +720,7 @@ CASES = [
     Case("unicode_names", unicode_names, "ok", (), pipeline=True),
     Case("unicode_names_figures", figures_small(unicode_names), "ok", (), pipeline=True, slow=True),
     Case("long_names", long_names, "ok", (), pipeline=True),
-    Case("long_names_figures", figures_small(long_names), "ok", (), pipeline=True, slow=True,
-         xfail="figure labels are not shortened: a 1000-character name makes maps and charts ~100 inches wide"),
+    Case("long_names_figures", figures_small(long_names), "ok", (), pipeline=True, slow=True),
     Case("authorship_in_names", authorship, "warning",
          (r"fossil_occurrences\.csv: 1 row\(s\) matched to taxa after leaving out the authorship",)),
     # ---- study.toml and paths ----
