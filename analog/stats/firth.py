@@ -1,6 +1,7 @@
 """Logistic regression by Firth's penalized likelihood, with profile intervals."""
 from __future__ import annotations
 
+import functools
 import warnings
 from dataclasses import dataclass, field
 
@@ -291,7 +292,14 @@ def _check_alpha(alpha):
     return alpha
 
 
-def _evaluate(X, y, w, beta, firth, free, exact):
+@functools.lru_cache(maxsize=64)
+def _pairs(p):
+    """Upper-triangle index pairs of a p x p matrix and their weights (2 off the diagonal)."""
+    rows, cols = np.triu_indices(p)
+    return rows, cols, np.where(rows == cols, 1.0, 2.0)
+
+
+def _evaluate(X, y, w, beta, firth, free, exact, all_free=False):
     """(Penalized) log-likelihood, Newton step and inverse Cholesky factor at beta.
 
     Returns None when the information matrix is not positive definite.
@@ -309,11 +317,10 @@ def _evaluate(X, y, w, beta, firth, free, exact):
         chol_inv = np.linalg.inv(chol)
     except np.linalg.LinAlgError:
         return None
-    diag = np.diag(chol)
-    if not (np.all(diag > 0) and np.all(np.isfinite(chol_inv))):
+    diag = chol.diagonal()
+    if not ((diag > 0).all() and np.isfinite(chol_inv).all()):
         return None
     resid = w * (y * comp - (1.0 - y) * prob)   # y - prob, exact for y in {0, 1}
-    curvature = info                             # minus the Hessian of the objective
     if firth:
         # z_i = L^-1 x_i; leverages h_i = v_i |z_i|^2 as row sums, never the n x n hat matrix
         z = X @ chol_inv.T
@@ -321,6 +328,7 @@ def _evaluate(X, y, w, beta, firth, free, exact):
         h = v * q
         resid = resid + h * (0.5 - prob)
         loglik += float(np.sum(np.log(diag)))        # 0.5 * log|I| = sum(log diag(chol))
+    score = X.T @ resid
     if firth and exact:
         # exact Hessian of 0.5 log|I(b)|: 0.5 (A - B) with
         # A_rs = sum_i v_i (1 - 6p_i + 6p_i^2) q_i x_ir x_is and
@@ -329,24 +337,39 @@ def _evaluate(X, y, w, beta, firth, free, exact):
         d2 = v * (1.0 - 6.0 * prob * comp) * q
         a_term = (X * d2[:, None]).T @ X
         # M is symmetric in (a, b): keep a <= b and count off-diagonal pairs twice
-        rows, cols = np.triu_indices(z.shape[1])
+        rows, cols, pair_weight = _pairs(z.shape[1])
         m_term = (X * (v * (comp - prob))[:, None]).T @ (z[:, rows] * z[:, cols])
-        pair_weight = np.where(rows == cols, 1.0, 2.0)
         curvature = info - 0.5 * (a_term - (m_term * pair_weight) @ m_term.T)
-    score = X.T @ resid
-    step = _newton_step(curvature, info, score, free)
+        step = _newton_step(curvature, info, score, free, all_free=all_free, info_chol=chol)
+    elif all_free:
+        step = _solve_chol(chol, score)   # Fisher scoring with the factor already at hand
+    else:
+        step = _newton_step(info, info, score, free)
     if step is None:
         return None
     return loglik, step, chol_inv
 
 
-def _newton_step(curvature, info, score, free):
+def _solve_chol(chol, rhs):
+    """``A^-1 rhs`` from the Cholesky factor of A; None if not finite."""
+    step = np.linalg.solve(chol.T, np.linalg.solve(chol, rhs))
+    return step if np.isfinite(step).all() else None
+
+
+def _newton_step(curvature, info, score, free, *, all_free=False, info_chol=None):
     """Solve on the free coordinates with the exact curvature, or the information if that fails.
 
     The penalized objective is not concave everywhere; where its curvature is
     not positive definite the Fisher-scoring step of Heinze & Schemper (2002)
-    is taken instead.
+    is taken instead. With every coordinate free, ``info_chol`` (the factor of
+    ``info``) saves factorizing it again.
     """
+    if all_free and info_chol is not None:
+        try:
+            step = _solve_chol(np.linalg.cholesky(curvature), score)
+        except np.linalg.LinAlgError:
+            step = None
+        return step if step is not None else _solve_chol(info_chol, score)
     idx = np.ix_(free, free)
     step = np.zeros_like(score)
     for matrix in (curvature, info):
@@ -371,7 +394,8 @@ def _newton(X, y, w, firth, beta0, free, max_iter, tol, *, want_cov=True):
     """
     beta = beta0.copy()
     exact = False
-    state = _evaluate(X, y, w, beta, firth, free, exact)
+    all_free = bool(free.all())
+    state = _evaluate(X, y, w, beta, firth, free, exact, all_free)
     if state is None:
         raise _Singular("the information matrix is singular at the start values; "
                         "X is probably rank deficient (drop or merge collinear columns)")
@@ -388,7 +412,7 @@ def _newton(X, y, w, firth, beta0, free, max_iter, tol, *, want_cov=True):
             break
         if firth and not exact and n_iter >= 3 and biggest > 0.25 * previous:
             exact = True
-            state = _evaluate(X, y, w, beta, firth, free, exact)
+            state = _evaluate(X, y, w, beta, firth, free, exact, all_free)
             loglik, step, _ = state
             biggest = np.max(np.abs(step), initial=0.0)
         previous = biggest
@@ -396,7 +420,7 @@ def _newton(X, y, w, firth, beta0, free, max_iter, tol, *, want_cov=True):
             step = step * (_MAX_STEP / biggest)
         for halvings in range(_MAX_HALVINGS):
             trial = beta + step
-            new = _evaluate(X, y, w, trial, firth, free, exact)
+            new = _evaluate(X, y, w, trial, firth, free, exact, all_free)
             if new is not None and new[0] >= loglik - 1e-10 * (1.0 + abs(loglik)):
                 break
             step = step / 2.0
@@ -404,7 +428,7 @@ def _newton(X, y, w, firth, beta0, free, max_iter, tol, *, want_cov=True):
             break   # no step improves the objective: stop, not converged
         if halvings and firth and not exact:
             exact = True
-            new = _evaluate(X, y, w, trial, firth, free, exact)
+            new = _evaluate(X, y, w, trial, firth, free, exact, all_free)
         beta, state = trial, new
         n_iter += 1
     cov = None
@@ -429,7 +453,7 @@ def _check_rank(X, w):
                           "with positive weight); drop or merge the collinear columns")
 
 
-def firth_logit(X, y, *, penalty="firth", max_iter=100, tol=1e-8, weights=None):
+def firth_logit(X, y, *, penalty="firth", max_iter=100, tol=1e-8, weights=None, start=None):
     """Logistic regression by Firth's penalized likelihood (or ordinary ML).
 
     Parameters
@@ -449,6 +473,13 @@ def firth_logit(X, y, *, penalty="firth", max_iter=100, tol=1e-8, weights=None):
     weights : array_like, shape (n,), optional
         Non-negative case (frequency) weights; integer weights give the same
         fit as repeating rows.
+    start : array_like, shape (p,), optional
+        Starting coefficients (default zeros), e.g. the estimates of a related
+        fit, which saves iterations. A start where the information matrix is
+        singular is replaced by zeros. Caution: in sparse data (few events,
+        many columns) the penalized likelihood can have more than one local
+        maximum, and a fit from another start can end at another one; the
+        default start (zeros) gives reproducible results.
 
     Returns
     -------
@@ -535,9 +566,24 @@ def firth_logit(X, y, *, penalty="firth", max_iter=100, tol=1e-8, weights=None):
     if not tol > 0:
         raise AnalogError(f"`tol` must be positive; got {tol} instead")
 
+    if start is None:
+        beta0 = np.zeros(p)
+    else:
+        beta0 = np.asarray(start, dtype=float).reshape(-1)
+        if beta0.size != p:
+            raise AnalogError(f"`start` has {beta0.size} values but `X` has {p} columns")
+        if not np.all(np.isfinite(beta0)):
+            raise AnalogError("`start` holds NaN or infinite values")
+
     _check_rank(Xa, wa)
-    fit = _newton(Xa, ya, wa, penalty == "firth", np.zeros(p), np.ones(p, dtype=bool),
-                  max_iter, tol)
+    free = np.ones(p, dtype=bool)
+    try:
+        fit = _newton(Xa, ya, wa, penalty == "firth", beta0, free, max_iter, tol)
+    except _Singular:
+        if start is None:
+            raise
+        # fitted probabilities saturated at the start: begin again from zeros
+        fit = _newton(Xa, ya, wa, penalty == "firth", np.zeros(p), free, max_iter, tol)
     converged = fit.converged
     hint = ""
     if penalty == "none":

@@ -351,3 +351,36 @@ def test_bad_data_are_rejected(complete_separation):
         got.conf_int(alpha=1.5)
     with pytest.raises(AnalogError, match="`names` has 1 entries"):
         got.summary_frame(["a"])
+
+
+# ---------------------------------------------------------------------------------------
+# warm start
+
+def test_warm_start_reaches_the_brute_force_maximum_in_fewer_iterations():
+    # reference: scipy BFGS on the explicit penalized log-likelihood (as above); the
+    # endometrial data have a single maximum, so any reasonable start must end there
+    X, y = _endometrial()
+    cold = firth_logit(X, y)
+    ref_beta, _ = _brute_force_firth(X.to_numpy(), y)
+    warm = firth_logit(X, y, start=cold.params + np.array([0.3, -0.5, 0.02, 0.4]))
+    assert warm.converged
+    np.testing.assert_allclose(warm.params, ref_beta, atol=2e-5)
+    np.testing.assert_allclose(warm.params, cold.params, atol=1e-7)
+    np.testing.assert_allclose(warm.bse, cold.bse, rtol=1e-6)
+    at_solution = firth_logit(X, y, start=cold.params)
+    assert at_solution.n_iter <= 1 < cold.n_iter
+
+
+def test_start_where_the_information_is_singular_falls_back_to_zeros():
+    # |x'b| ~ 1e4 at this start: every fitted probability is 0 or 1 in double precision
+    X, y = _endometrial()
+    got = firth_logit(X, y, start=[0.0, 0.0, 500.0, 0.0])
+    np.testing.assert_allclose(got.params, firth_logit(X, y).params, atol=1e-10)
+
+
+def test_bad_start_is_rejected(complete_separation):
+    X, y = complete_separation
+    with pytest.raises(AnalogError, match="`start` has 3 values but `X` has 2 columns"):
+        firth_logit(X, y, start=[0.0, 1.0, 0.0])
+    with pytest.raises(AnalogError, match="`start` holds NaN"):
+        firth_logit(X, y, start=[0.0, np.nan])
