@@ -101,8 +101,9 @@ def render_figure(fig, fmt: str, *, dpi: int = 300, bbox=None) -> bytes:
 def _png_bytes(fig, *, dpi: int, bbox) -> bytes | None:
     """PNG of an opaque figure as an RGB image (no alpha channel); None to fall back to ``savefig``.
 
-    Matplotlib writes RGBA; dropping a constant alpha channel makes the file about 10 %
-    smaller and the compression, the slowest step of a PNG, about a third faster.
+    Matplotlib writes RGBA at zlib level 6. Without the constant alpha channel and at level 3
+    the file is about as large and the compression, the slowest step of a PNG, takes about
+    half as long.
     """
     import numpy as np
     from PIL import Image
@@ -114,12 +115,12 @@ def _png_bytes(fig, *, dpi: int, bbox) -> bytes | None:
     width, height = int(bbox.width * dpi), int(bbox.height * dpi)
     if width * height * 4 != len(raw):
         return None
-    pixels = np.frombuffer(raw, dtype=np.uint8).reshape(height, width, 4)
-    if pixels[..., 3].min() < 255:
+    if np.frombuffer(raw, dtype=np.uint8)[3::4].min() < 255:
         return None   # transparency drawn: keep matplotlib's RGBA file
+    image = Image.frombuffer("RGBA", (width, height), raw, "raw", "RGBA", 0, 1).convert("RGB")
     out = io.BytesIO()
     # no text chunks (as metadata={'Software': None}); pHYs carries the dpi as matplotlib writes it
-    Image.fromarray(np.ascontiguousarray(pixels[..., :3]), "RGB").save(out, format="png", dpi=(dpi, dpi))
+    image.save(out, format="png", dpi=(dpi, dpi), compress_level=3)
     return out.getvalue()
 
 
