@@ -203,6 +203,10 @@ def _figures(run: RunResult) -> dict[str, tuple[Any, tuple[str, ...]]]:
     return {k: (f, formats) for _, draw, formats in _figure_jobs(run) for k, f in draw().items()}
 
 
+# rough relative drawing time of each kind of figure (by the first word of its stem)
+_FIGURE_COST = {"trajectories": 4, "risk": 2, "forest": 2}
+
+
 def _draw_and_render(draw, formats, dpi) -> dict[str, dict[str, bytes]]:
     """Draw one job's figures and render each format; stem -> format -> bytes."""
     import matplotlib.pyplot as plt
@@ -282,8 +286,9 @@ def render_figures(run: RunResult, *, dpi: int = 300, workers: int | None = None
     drawn here.
     """
     jobs = _figure_jobs(run)
-    # longest first (small multiples), so the two processes finish close together
-    order = sorted(range(len(jobs)), key=lambda i: not jobs[i][0].startswith("trajectories"))
+    # longest first (small multiples, then maps and forest plots, then single charts), so the two
+    # processes finish close together
+    order = sorted(range(len(jobs)), key=lambda i: -_FIGURE_COST.get(jobs[i][0].split("_")[0], 1))
     results: dict[int, dict[str, dict[str, bytes]]] = {}
     n_done = 0
 
