@@ -112,9 +112,9 @@ class DaskEngine(Engine):
     -----
     Shared data are scattered to every worker once per :meth:`map` call
     (``Client.scatter(..., broadcast=True)``), the chunks are scattered, and the
-    function is mapped over them with ``Client.map``; results are gathered in order. Workers must run the same versions of
-    analog, numpy, pandas and shapely as this process for results to match the
-    local engine bit for bit.
+    function is mapped over them with ``Client.map``; results are gathered in
+    order. Workers must run the same versions of analog, numpy, pandas and
+    shapely as this process for results to match the local engine bit for bit.
     """
 
     name = "dask"

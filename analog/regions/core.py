@@ -40,7 +40,8 @@ def assess_regions(study, combined_result, params: RegionParams | None = None, *
     progress : callable, optional
         ``progress(label, done, total)``.
     engine : {'local', 'dask'} or analog.engine.Engine, optional
-        Where the spatial assignment runs (default: in this process); results are identical.
+        Where the spatial assignment and the diversity-loss draws run (default: in this
+        process); results are identical.
 
     Returns
     -------
@@ -68,7 +69,13 @@ def assess_regions(study, combined_result, params: RegionParams | None = None, *
     ----------
     Faith, D. P. (2008). Conservation Biology 22, 1461-1470.
     """
-    params = params or PARAMS()
+    from ..engine import engine_scope
+
+    with engine_scope(engine) as eng:
+        return _assess(study, combined_result, params or PARAMS(), progress=progress, engine=eng)
+
+
+def _assess(study, combined_result, params: RegionParams, *, progress, engine) -> RegionResult:
     notes: list[str] = []
     regions = study.regions.reset_index(drop=True)
     occ = study.modern_occurrences
@@ -93,7 +100,7 @@ def assess_regions(study, combined_result, params: RegionParams | None = None, *
     presence = presence.join(rk[["scientificName", "combined_p", "tier"]], on="taxon_id")
     presence = presence[PRESENCE_COLUMNS + ["scientificName", "combined_p", "tier"]]
 
-    summary = _indices(regions, presence, records, combined_result, study, params, notes)
+    summary = _indices(regions, presence, records, combined_result, study, params, notes, engine)
     if progress:
         progress("regions", 2, 3)
     summary["area_km2"] = region_areas_km2(regions, ea.crs).to_numpy()
@@ -102,13 +109,13 @@ def assess_regions(study, combined_result, params: RegionParams | None = None, *
     if progress:
         progress("regions", 3, 3)
     for msg in notes:
-        warnings.warn(msg, AnalogWarning, stacklevel=2)
+        warnings.warn(msg, AnalogWarning, stacklevel=3)
     return RegionResult(presence=presence, region_summary=summary, layer=layer, unassigned=int(len(unassigned)),
                         unassigned_occurrences=unassigned, projection=ea.proj, projection_label=ea.label,
                         params=params, warnings=notes)
 
 
-def _indices(regions, presence, records, combined_result, study, params, notes) -> pd.DataFrame:
+def _indices(regions, presence, records, combined_result, study, params, notes, engine=None) -> pd.DataFrame:
     rid = regions["region_id"].astype(str).to_numpy()
     rk = combined_result.rankings.set_index("taxon_id")
     taxa = rk.index.to_numpy()
@@ -156,7 +163,7 @@ def _indices(regions, presence, records, combined_result, study, params, notes) 
     out["n_taxa_both"] = n_both
     diff_sum = BT @ np.nan_to_num(a - t)
     out["mean_difference"] = np.divide(diff_sum, n_both, out=np.full(len(rid), np.nan), where=n_both > 0)
-    out = out.join(_diversity(study, taxa, combined_mask, combined_p, combined_draws, alpha, rid, notes))
+    out = out.join(_diversity(study, taxa, combined_mask, combined_p, combined_draws, alpha, rid, notes, engine))
 
     few_taxa = out["n_taxa"] < params.min_taxa
     few_records = out["n_records"] < params.min_region_records
@@ -210,7 +217,7 @@ def _q(summed: np.ndarray, q: float) -> np.ndarray:
     return np.quantile(summed, q, axis=1)
 
 
-def _diversity(study, taxa, mask, p, draws, alpha, rid, notes) -> pd.DataFrame:
+def _diversity(study, taxa, mask, p, draws, alpha, rid, notes, engine=None) -> pd.DataFrame:
     cols = ["diversity_loss", "diversity_loss_low", "diversity_loss_high", "diversity_total"]
     out = pd.DataFrame(np.nan, index=range(len(rid)), columns=cols)
     assessed = ~np.isnan(p)
@@ -225,7 +232,7 @@ def _diversity(study, taxa, mask, p, draws, alpha, rid, notes) -> pd.DataFrame:
     out["diversity_loss"] = expected_diversity_loss(inc, m, p[assessed])
     out["diversity_total"] = expected_diversity_loss(inc, m, np.ones(assessed.sum()))
     if draws.shape[1]:
-        per_draw = expected_diversity_loss(inc, m, np.nan_to_num(draws[assessed], nan=0.0))
+        per_draw = expected_diversity_loss(inc, m, np.nan_to_num(draws[assessed], nan=0.0), engine=engine)
         out["diversity_loss_low"] = np.quantile(per_draw, alpha, axis=1)
         out["diversity_loss_high"] = np.quantile(per_draw, 1 - alpha, axis=1)
     return out

@@ -5,6 +5,8 @@ import networkx as nx
 import numpy as np
 import scipy.sparse as sp
 
+from ..engine import engine_scope, split_counts
+
 __all__ = ["branch_incidence", "expected_diversity_loss"]
 
 
@@ -49,7 +51,7 @@ def branch_incidence(tree: nx.DiGraph, taxon_ids) -> tuple[sp.csr_matrix, list]:
 
 
 def expected_diversity_loss(incidence: sp.csr_matrix, present: np.ndarray, p: np.ndarray, *,
-                            lengths: np.ndarray | None = None) -> np.ndarray:
+                            lengths: np.ndarray | None = None, engine=None) -> np.ndarray:
     """Expected branch length lost from each region's tree.
 
     Parameters
@@ -62,6 +64,9 @@ def expected_diversity_loss(incidence: sp.csr_matrix, present: np.ndarray, p: np
         Probability each taxon is lost.
     lengths : array, shape (n_branches,), optional
         Branch lengths; unit length per branch when omitted.
+    engine : {'local', 'dask'} or analog.engine.Engine, optional
+        Where the blocks of regions are computed (default: in this process); results are
+        identical.
 
     Returns
     -------
@@ -91,17 +96,41 @@ def expected_diversity_loss(incidence: sp.csr_matrix, present: np.ndarray, p: np
     n_regions = present.shape[1]
     lengths = np.ones(incidence.shape[0]) if lengths is None else np.asarray(lengths, dtype=float)
     with np.errstate(divide="ignore"):
-        logp = np.log(np.clip(p, 0.0, 1.0))
-    out = np.zeros((n_regions, p.shape[1]))
-    inc = incidence.tocsc()
-    for r in range(n_regions):  # one sparse product per region, not per taxon
-        col = present[:, [r]]
-        idx = col.indices[col.data != 0]
+        logp = np.nan_to_num(np.log(np.clip(p, 0.0, 1.0)), neginf=-1e300)  # p = 0: the branch certainly survives
+    below = sp.csr_matrix(incidence).T.tocsr()      # taxa x branches: the branches above each taxon
+    blocks = split_counts(n_regions, _REGIONS_PER_CHUNK)
+    with engine_scope(engine) as eng:
+        parts = eng.map(_loss_block, blocks, shared=(below, present, logp, lengths))
+    out = np.vstack(parts) if parts else np.zeros((0, p.shape[1]))
+    return out[:, 0] if squeeze else out
+
+
+_REGIONS_PER_CHUNK = 50
+
+
+def _loss_block(block, shared) -> np.ndarray:
+    """Expected loss for the regions ``block = (start, stop)``: one sparse product per region,
+    over the branches its taxa span."""
+    below, present, logp, lengths = shared
+    start, stop = block
+    out = np.zeros((stop - start, logp.shape[1]))
+    for k, r in enumerate(range(start, stop)):
+        lo, hi = present.indptr[r], present.indptr[r + 1]
+        idx = present.indices[lo:hi][present.data[lo:hi] != 0]
         if not len(idx):
             continue
-        sub = inc[:, idx]
-        spanned = np.asarray(sub.sum(axis=1)).ravel() > 0
-        lp = np.nan_to_num(logp[idx], neginf=-1e300)  # p = 0: the branch certainly survives
-        log_lost = sub[spanned] @ lp
-        out[r] = lengths[spanned] @ np.exp(log_lost)
-    return out[:, 0] if squeeze else out
+        sub = below[idx]
+        branches, col = _codes(sub.indices)
+        sub = sp.csr_matrix((sub.data, col, sub.indptr), shape=(len(idx), len(branches)))
+        out[k] = lengths[branches] @ np.exp(sub.T @ logp[idx])
+    return out
+
+
+def _codes(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Sorted distinct values and each value's position among them."""
+    order = np.argsort(values, kind="stable")
+    s = values[order]
+    new = np.r_[True, s[1:] != s[:-1]] if len(s) else np.zeros(0, dtype=bool)
+    codes = np.empty(len(values), dtype=np.int64)
+    codes[order] = np.cumsum(new) - 1
+    return s[new], codes

@@ -84,7 +84,8 @@ def generate(folder: Path, *, n_fossil: int, n_modern: int, n_taxa: int, n_regio
     outline = _outline(rng)
     seeds = []
     while len(seeds) < n_regions:
-        p = np.column_stack([rng.uniform(EXTENT[0], EXTENT[2], n_regions), rng.uniform(EXTENT[1], EXTENT[3], n_regions)])
+        p = np.column_stack([rng.uniform(EXTENT[0], EXTENT[2], n_regions),
+                             rng.uniform(EXTENT[1], EXTENT[3], n_regions)])
         seeds.extend(p[shapely.contains_xy(outline, p[:, 0], p[:, 1])])
     seeds = np.array(seeds[:n_regions])
     cells = shapely.get_parts(shapely.voronoi_polygons(shapely.multipoints(seeds), extend_to=shapely.box(*EXTENT)))
@@ -494,13 +495,21 @@ def stage_whole(folder, args):
     from analog.pipeline import STAGE_ORDER, run_study, write_outputs
 
     stages = tuple(s for s in STAGE_ORDER if s not in set(args.skip_stages))
+
+    def progress(stage):
+        def step(label, done, total):
+            _say_step(f"the {stage} stage ({label})")
+        return step
+
     t0 = time.perf_counter()
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
+        _say_step("intake")
         study = load_study(folder)
         t_intake = time.perf_counter() - t0
         with get_engine(args.engine) as engine:
-            run = run_study(study, stages=stages, engine=engine)
+            run = run_study(study, stages=stages, engine=engine, progress=progress)
+        _say_step("writing the outputs")
         t1 = time.perf_counter()
         with tempfile.TemporaryDirectory() as tmp:
             write_outputs(run, Path(tmp) / "out", figures=False)
@@ -513,6 +522,15 @@ def stage_whole(folder, args):
 
 # ============================================================ driver
 
+_STEP_FILE = "ANALOG_BENCH_STEP_FILE"  # the worker writes what it is doing here, for the memory guard
+
+
+def _say_step(text: str) -> None:
+    path = os.environ.get(_STEP_FILE)
+    if path:
+        Path(path).write_text(text)
+
+
 def _worker(args) -> None:
     folder = Path(args.data)
     out = globals()[f"stage_{args.worker}"](folder, args)
@@ -522,18 +540,53 @@ def _worker(args) -> None:
     print("RESULT " + json.dumps(out), flush=True)
 
 
+def _guard(child: subprocess.Popen, cap_bytes: float, timeout: float) -> str:
+    """Wait for ``child``; stop it if its resident memory passes ``cap_bytes`` or time runs out.
+
+    The machine is shared: a stage that runs away must be stopped before the kernel's
+    out-of-memory killer picks a process, possibly another user's. Returns why it was
+    stopped ('' when it finished by itself).
+    """
+    page = os.sysconf("SC_PAGE_SIZE")
+    start = time.perf_counter()
+    while child.poll() is None:
+        try:
+            with open(f"/proc/{child.pid}/statm") as fh:
+                rss = int(fh.read().split()[1]) * page
+        except OSError:
+            rss = 0
+        why = ""
+        if rss > cap_bytes:
+            why = f"stopped at {rss / 2 ** 30:.1f} GiB resident memory (cap {cap_bytes / 2 ** 30:g} GiB)"
+        elif time.perf_counter() - start > timeout:
+            why = f"did not finish within {timeout:.0f} s (stopped)"
+        if why:
+            child.kill()
+            child.wait()
+            return why
+        time.sleep(0.05)
+    return ""
+
+
 def _run_stage(stage: str, folder: Path, args) -> dict:
     cmd = [sys.executable, str(Path(__file__).resolve()), "--worker", stage, "--data", str(folder),
            "--engine", args.engine, "--naive-points", str(args.naive_points), "--naive-taxa", str(args.naive_taxa),
            "--naive-series", str(args.naive_series)]
     if args.skip_stages:
         cmd += ["--skip-stages", ",".join(args.skip_stages)]
+    cmd += ["--memory-cap", str(args.memory_cap)]
     print(f"[{time.strftime('%H:%M:%S')}] {stage} ...", file=sys.stderr, flush=True)
     t0 = time.perf_counter()
-    try:
-        proc = subprocess.run(cmd, capture_output=True, text=True, timeout=args.timeout)
-    except subprocess.TimeoutExpired:
-        return {"error": f"did not finish within {args.timeout:.0f} s (stopped)", "wall_process": args.timeout}
+    with tempfile.TemporaryDirectory() as tmp:
+        step_file = Path(tmp) / "step"
+        out_file, err_file = Path(tmp) / "out", Path(tmp) / "err"
+        with open(out_file, "w") as out, open(err_file, "w") as err:
+            child = subprocess.Popen(cmd, stdout=out, stderr=err, env={**os.environ, _STEP_FILE: str(step_file)})
+            stopped = _guard(child, args.memory_cap * 2 ** 30, args.timeout)
+        if stopped:
+            step = step_file.read_text() if step_file.exists() else ""
+            return {"error": stopped + (f" during {step}" if step else ""), "wall_process": time.perf_counter() - t0}
+        proc = subprocess.CompletedProcess(cmd, child.returncode, out_file.read_text(), err_file.read_text())
     lines = [ln for ln in proc.stdout.splitlines() if ln.startswith("RESULT ")]
     if proc.returncode != 0 or not lines:
         tail = (proc.stderr or proc.stdout).strip().splitlines()[-3:]
@@ -553,7 +606,8 @@ def report(scale: str, folder: Path, results: dict, args, load: tuple) -> str:
     floor = results.get("floor", {}).get("seconds")
     naive_of = {"spatial": "spatial_naive", "occupancy": "occupancy_naive", "trajectory": "bootstrap_naive"}
     labels = {"floor": "read floor (pyarrow, needed columns)", "intake": "intake (read + validate)",
-              "spatial": "spatial assignment + presence counts", "spatial_naive": "  straightforward: sjoin every point",
+              "spatial": "spatial assignment + presence counts",
+              "spatial_naive": "  straightforward: sjoin every point",
               "occupancy": "occupancy binning (20 age draws)",
               "occupancy_naive": "  straightforward: per-taxon loop",
               "trajectory": "trajectory stage (whole)", "bootstrap_naive": "  straightforward bootstrap: loops",
@@ -571,7 +625,7 @@ def report(scale: str, folder: Path, results: dict, args, load: tuple) -> str:
     for stage in [s for s in STAGES if s in results]:
         r = results[stage]
         if "error" in r:
-            lines.append(f"| {labels[stage]} | | {r['error']} | | | | |")
+            lines.append(f"| {labels[stage]} | | {r['error']} (after {r.get('wall_process', 0):,.0f} s) | | | | |")
             continue
         sec, rows = r["seconds"], r["rows"]
         gib = r["peak_rss_bytes"] / 2 ** 30
@@ -615,6 +669,8 @@ def main(argv=None) -> int:
     p.add_argument("--naive-taxa", type=int, default=200, help="taxa the straightforward occupancy loop runs on")
     p.add_argument("--naive-series", type=int, default=100, help="series the straightforward bootstrap runs on")
     p.add_argument("--timeout", type=float, default=3 * 3600, help="seconds before a stage is stopped")
+    p.add_argument("--memory-cap", type=float, default=12.0,
+                   help="GiB of resident memory at which a stage is stopped (protects a shared machine)")
     p.add_argument("--out", help="also write the Markdown table here")
     p.add_argument("--worker", help=argparse.SUPPRESS)
     p.add_argument("--data", help=argparse.SUPPRESS)
