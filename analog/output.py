@@ -23,6 +23,7 @@ from .errors import InputError, Problem
 __all__ = ["OutputFolder", "check_output_target", "frame_to_csv_bytes", "render_figure", "tight_bbox"]
 
 FLOAT_FORMAT = "%.6g"
+LAYER_TIMESTAMP = "2000-01-01T00:00:00.000Z"   # fixed GeoPackage change time (see OutputFolder.write_layer)
 
 
 def frame_to_csv_bytes(frame: pd.DataFrame) -> bytes:
@@ -187,7 +188,17 @@ class OutputFolder:
         return out
 
     def write_layer(self, relative: str, gdf, *, layer: str | None = None) -> None:
-        gdf.to_file(self.path(relative), driver="GPKG", layer=layer or Path(relative).stem, engine="pyogrio")
+        """Write a GeoPackage layer; its timestamps are fixed so a rerun writes the same bytes."""
+        import pyogrio
+
+        # GeoPackage records the write time (gpkg_contents.last_change); GDAL takes it from
+        # OGR_CURRENT_DATE when set. The run time is recorded in manifest.json instead.
+        before = pyogrio.get_gdal_config_option("OGR_CURRENT_DATE")
+        pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": LAYER_TIMESTAMP})
+        try:
+            gdf.to_file(self.path(relative), driver="GPKG", layer=layer or Path(relative).stem, engine="pyogrio")
+        finally:
+            pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": before})
         self.written.append(relative)
 
     # -- committing ----------------------------------------------------------------------------

@@ -83,3 +83,25 @@ def test_figure_rendering_is_byte_identical(fmt):
     a, b = draw(), draw()
     assert render_figure(a, fmt, dpi=50) == render_figure(b, fmt, dpi=50)
     plt.close("all")
+
+
+def test_geopackage_layer_is_byte_identical_on_a_rerun(tmp_path):
+    # GeoPackage stores the write time in gpkg_contents.last_change (OGC GeoPackage 1.3,
+    # table 5); it is fixed, so two writes give the same file
+    import sqlite3
+
+    import geopandas as gpd
+    from shapely.geometry import box
+
+    from analog.output import LAYER_TIMESTAMP
+
+    layer = gpd.GeoDataFrame({"region_id": ["a", "b"]}, geometry=[box(0, 0, 1, 1), box(1, 0, 2, 1)],
+                             crs="EPSG:4326")
+    files = []
+    for name in ("first", "second"):
+        with OutputFolder(tmp_path / name) as folder:
+            folder.write_layer("regions.gpkg", layer, layer="regions")
+            files.append(folder.commit() / "regions.gpkg")
+    assert files[0].read_bytes() == files[1].read_bytes()
+    with sqlite3.connect(files[0]) as con:
+        assert con.execute("select last_change from gpkg_contents").fetchall() == [(LAYER_TIMESTAMP,)]
