@@ -130,7 +130,10 @@ def _global_check(tau2, y, v):
 
     top = 4.0 * (float(np.var(y)) + float(np.max(v))) + 2.0 * tau2 + 1.0
     grid = np.r_[0.0, np.geomspace(1e-8 * top, top, 80)]
-    lls = np.array([_reml_loglik(t, y, v) for t in grid])
+    w = 1.0 / (v[None, :] + grid[:, None])  # all grid points at once
+    sw = np.sum(w, axis=1)
+    mu = np.sum(w * y, axis=1) / sw
+    lls = 0.5 * (np.sum(np.log(w), axis=1) - np.log(sw) - np.sum(w * (y - mu[:, None]) ** 2, axis=1))
     i = int(np.argmax(lls))
     if lls[i] <= _reml_loglik(tau2, y, v) + 1e-12 * (1.0 + abs(lls[i])):
         return tau2
