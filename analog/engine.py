@@ -14,6 +14,7 @@ connects to a running cluster instead. Dask is optional: ``pip install "analog[d
 """
 from __future__ import annotations
 
+from abc import ABC, abstractmethod
 from typing import Any, Callable, Sequence
 
 from .errors import AnalogError
@@ -24,7 +25,7 @@ ENGINE_NAMES = ("local", "dask")
 _INSTALL_HINT = 'install the optional Dask libraries with: pip install "analog[dask]"'
 
 
-class Engine:
+class Engine(ABC):
     """Runs independent chunks of work and returns their results in order.
 
     Subclasses implement :meth:`map`. An engine is a context manager; leaving the
@@ -34,6 +35,7 @@ class Engine:
 
     name = "engine"
 
+    @abstractmethod
     def map(self, fn: Callable, chunks: Sequence, *, shared: Any = None,
             progress: Callable[[int, int], None] | None = None) -> list:
         """``[fn(chunk, shared) for chunk in chunks]``, wherever the engine runs them.
@@ -55,7 +57,6 @@ class Engine:
         list
             Results in the order of ``chunks``.
         """
-        raise NotImplementedError
 
     def describe(self) -> str:
         """One line saying where the work runs."""
