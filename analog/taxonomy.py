@@ -23,7 +23,7 @@ from .errors import AnalogWarning, InputError, Problem
 from .study import RANK_COLUMNS
 
 __all__ = ["RANK_LEVELS", "fill_higher_ranks", "build_rank_tree", "lowest_shared_rank", "shared_rank_depth",
-           "taxonomic_distance_matrix"]
+           "shared_rank_depth_blocks", "depth_distance", "taxonomic_distance_matrix"]
 
 # Depth 0 = nothing shared, 1..6 = the rank columns, 7 = the same taxon.
 RANK_LEVELS = ("root",) + RANK_COLUMNS + ("taxon",)
@@ -216,22 +216,63 @@ def shared_rank_depth(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame, *, fill_blanks
     Memory: one int8 matrix plus one boolean temporary, so 20,000 x 3,000 pairs
     take about 120 MB.
     """
+    depth = np.zeros((len(taxa_a), len(taxa_b)), dtype=np.int8)
+    for rows, block in shared_rank_depth_blocks(taxa_a, taxa_b, block_rows=max(len(taxa_a), 1),
+                                                fill_blanks=fill_blanks):
+        depth[rows] = block
+    return depth
+
+
+def shared_rank_depth_blocks(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame, *, block_rows: int,
+                             fill_blanks: bool = True):
+    """:func:`shared_rank_depth`, one block of rows of ``taxa_a`` at a time.
+
+    Parameters
+    ----------
+    taxa_a, taxa_b : DataFrame
+        Columns ``taxon_id`` and the rank columns.
+    block_rows : int
+        Rows of ``taxa_a`` per block (at least 1).
+    fill_blanks : bool, default=True
+        Fill blank higher ranks first, over both whole tables together.
+
+    Yields
+    ------
+    rows : slice
+        The rows of ``taxa_a`` in this block.
+    depth : ndarray of int8, shape (rows.stop - rows.start, len(taxa_b))
+        The same numbers as ``shared_rank_depth(taxa_a, taxa_b)[rows]``.
+
+    Notes
+    -----
+    Blank ranks are filled and names coded once for both whole tables, so the block size
+    changes no depth; only one block (int8 plus one boolean temporary) is held at a time.
+    """
     _check_columns(taxa_a, "taxa_a")
     _check_columns(taxa_b, "taxa_b")
     n_a = len(taxa_a)
     cols = ["taxon_id", *RANK_COLUMNS]
     both = pd.concat([taxa_a[cols], taxa_b[cols]], ignore_index=True)
     both = fill_higher_ranks(both) if fill_blanks else pd.concat([both[["taxon_id"]], _rank_text(both)], axis=1)
-    depth = np.zeros((n_a, len(taxa_b)), dtype=np.int8)
-    for level, rank in enumerate(RANK_COLUMNS, start=1):
-        ca, cb = _codes(both[rank], n_a)
-        same = ca[:, None] == cb[None, :]
-        same &= (ca >= 0)[:, None]
-        depth[same] = level
-    ia, ib = _codes(both["taxon_id"].astype("str"), n_a)
-    same = (ia[:, None] == ib[None, :]) & (ia >= 0)[:, None]
-    depth[same] = _N_LEVELS
-    return depth
+    codes = [_codes(both[rank], n_a) for rank in RANK_COLUMNS]
+    codes.append(_codes(both["taxon_id"].astype("str"), n_a))
+    levels = list(range(1, len(RANK_COLUMNS) + 1)) + [_N_LEVELS]
+    step = max(1, int(block_rows))
+    for start in range(0, n_a, step):
+        rows = slice(start, min(n_a, start + step))
+        depth = np.zeros((rows.stop - rows.start, len(taxa_b)), dtype=np.int8)
+        for level, (ca, cb) in zip(levels, codes):
+            ca = ca[rows]
+            same = ca[:, None] == cb[None, :]
+            same &= (ca >= 0)[:, None]
+            depth[same] = level
+        yield rows, depth
+
+
+def depth_distance(depth: np.ndarray, dtype=np.float64) -> np.ndarray:
+    """Taxonomic distance ``(7 - depth) / 7`` from shared-rank depths (:func:`shared_rank_depth`)."""
+    dtype = np.dtype(dtype)
+    return (_N_LEVELS - depth.astype(dtype)) / dtype.type(_N_LEVELS)
 
 
 def taxonomic_distance_matrix(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame, *, dtype=np.float64,
@@ -268,7 +309,6 @@ def taxonomic_distance_matrix(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame, *, dty
     statistical properties. Journal of Applied Ecology 35, 523-531.
     """
     depth = shared_rank_depth(taxa_a, taxa_b, fill_blanks=fill_blanks)
-    dtype = np.dtype(dtype)
-    distance = (_N_LEVELS - depth.astype(dtype)) / dtype.type(_N_LEVELS)
+    distance = depth_distance(depth, dtype)
     shared = np.asarray(RANK_LEVELS)[depth]
     return distance, shared

@@ -6,14 +6,18 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .. import stats
+from ..stats.gower import gower_blocks
 from ..study import RANK_COLUMNS, TraitSpec
+from ..taxonomy import RANK_LEVELS
 
 __all__ = ["Matches", "match_relatives", "NUMERIC_DIFFERENCE"]
 
 # A numeric trait "differs" in a reason string when the two values are further apart than
 # this share of the trait's observed range (our own reading threshold, not a published rule).
 NUMERIC_DIFFERENCE = 0.10
+
+# modern x fossil pairs compared at once: bounds each temporary matrix to about 32 MB
+BLOCK_PAIRS = 4_000_000
 
 
 @dataclass(frozen=True)
@@ -48,7 +52,7 @@ def _no_rank(value) -> bool:
 
 def match_relatives(modern: pd.DataFrame, fossil: pd.DataFrame, traits: dict[str, TraitSpec], *,
                     taxonomy_weight: float = 0.5, n_relatives: int = 5,
-                    min_similarity: float = 0.5) -> Matches:
+                    min_similarity: float = 0.5, block_pairs: int | None = BLOCK_PAIRS) -> Matches:
     """The most similar fossil relatives of each modern taxon.
 
     Parameters
@@ -62,6 +66,9 @@ def match_relatives(modern: pd.DataFrame, fossil: pd.DataFrame, traits: dict[str
         Share ``w`` of taxonomic distance in the combined distance.
     n_relatives : int, default=5
     min_similarity : float, default=0.5
+    block_pairs : int or None, default=BLOCK_PAIRS
+        Modern x fossil pairs compared at once (blocks of modern taxa); None compares all
+        at once. The block size changes no result, only the memory held.
 
     Returns
     -------
@@ -77,6 +84,10 @@ def match_relatives(modern: pd.DataFrame, fossil: pd.DataFrame, traits: dict[str
     its own relative. Ties are broken by relative ``taxon_id``. Modern taxa with no
     candidate at or above ``min_similarity`` get no rows: no relative is invented.
 
+    Distances are computed for one block of modern taxa at a time and only the ``k`` best
+    candidates of each are kept (a partition, then a stable sort of those ``k``), so memory
+    grows with ``block_pairs`` and ``n_modern x k``, not with ``n_modern x n_fossil``.
+
     The reason names the lowest shared rank and the traits that differ: classes that
     differ for categorical, ordinal and binary traits; numeric values further apart than
     10 % of the trait's observed range.
@@ -88,39 +99,18 @@ def match_relatives(modern: pd.DataFrame, fossil: pd.DataFrame, traits: dict[str
     Podani, J. (1999). Extending Gower's general coefficient of similarity to ordinal
     characters. Taxon 48, 331-340.
     """
-    from ..taxonomy import taxonomic_distance_matrix
-
     n_mod, n_fos = len(modern), len(fossil)
     k = int(n_relatives)
     if n_mod == 0 or n_fos == 0:
         return Matches(pd.DataFrame({c: pd.Series(dtype=float) for c in _COLUMNS}),
                        np.full((n_mod, k), -1), np.zeros((n_mod, k)), np.zeros(n_mod, dtype=int))
-    ranks = [c for c in RANK_COLUMNS if c in modern.columns] + ["taxon_id"]
-    tax_d, shared = taxonomic_distance_matrix(modern[ranks].reset_index(drop=True),
-                                              fossil[ranks].reset_index(drop=True))
-    tax_d = np.asarray(tax_d, dtype=float)
-    shared = np.asarray(shared, dtype=object)
-    names = list(traits)
-    if names:
-        kinds = {n: traits[n].kind for n in names}
-        levels = {n: list(traits[n].levels) for n in names if traits[n].kind == "ordinal" and traits[n].levels}
-        trait_d = np.asarray(stats.gower_distance(modern[names].reset_index(drop=True),
-                                                  fossil[names].reset_index(drop=True), kinds, levels=levels),
-                             dtype=float)
-    else:
-        trait_d = np.full((n_mod, n_fos), np.nan)
-    w = float(taxonomy_weight)
-    dist = np.where(np.isnan(trait_d), tax_d, np.where(np.isnan(tax_d), trait_d, w * tax_d + (1 - w) * trait_d))
-    sim = 1.0 - dist
+    modern = modern.reset_index(drop=True)
+    fossil = fossil.reset_index(drop=True)
     mod_ids = modern["taxon_id"].astype(str).to_numpy()
     fos_ids = fossil["taxon_id"].astype(str).to_numpy()
-    sim[mod_ids[:, None] == fos_ids[None, :]] = -np.inf
-    sim = np.where(np.isnan(sim), -np.inf, sim)
-
-    # stable sort on descending similarity, candidates pre-ordered by taxon_id
-    by_id = np.argsort(fos_ids, kind="stable")
-    order = by_id[np.argsort(-sim[:, by_id], axis=1, kind="stable")][:, :k]
-    top = np.take_along_axis(sim, order, axis=1)
+    rows_per_block = max(1, int(block_pairs) // n_fos) if block_pairs else n_mod
+    top, order, trait_top, depth_top = _top_relatives(modern, fossil, traits, mod_ids, fos_ids, k,
+                                                      float(taxonomy_weight), rows_per_block)
     keep = top >= min_similarity
     index = np.where(keep, order, -1)
     similarity = np.where(keep, top, 0.0)
@@ -128,18 +118,92 @@ def match_relatives(modern: pd.DataFrame, fossil: pd.DataFrame, traits: dict[str
 
     ee, rr = np.nonzero(keep)
     ff = order[ee, rr]
-    reasons = _reasons(modern.reset_index(drop=True), fossil.reset_index(drop=True), traits, ee, ff,
-                       shared[ee, ff])
+    shared = np.asarray(RANK_LEVELS, dtype=object)[depth_top[ee, rr]]
+    reasons = _reasons(modern, fossil, traits, ee, ff, shared)
     table = pd.DataFrame({
         "taxon_id": pd.array(mod_ids[ee], dtype="str"),
         "relative_id": pd.array(fos_ids[ff], dtype="str"),
         "relative_rank": (rr + 1).astype(int),
         "similarity": top[ee, rr],
-        "shared_rank": pd.array(["none" if _no_rank(s) else str(s) for s in shared[ee, ff]], dtype="str"),
-        "trait_distance": trait_d[ee, ff],
+        "shared_rank": pd.array(["none" if _no_rank(s) else str(s) for s in shared], dtype="str"),
+        "trait_distance": trait_top[ee, rr],
         "reason": pd.array(reasons, dtype="str"),
     })
     return Matches(table, index, similarity, n_kept)
+
+
+def _top_relatives(modern, fossil, traits, mod_ids, fos_ids, k, w, rows_per_block):
+    """The ``k`` most similar fossil taxa of every modern taxon, one block of modern taxa at a time.
+
+    Returns ``(similarity, fossil row, trait distance, shared-rank depth)``, each of shape
+    ``(n_mod, min(k, n_fos))``, relatives in the order of a stable sort on descending
+    similarity over candidates ordered by ``taxon_id``. Only one block of the
+    modern x fossil matrices is held at a time.
+    """
+    from ..taxonomy import depth_distance, shared_rank_depth_blocks
+
+    n_mod, n_fos = len(modern), len(fossil)
+    kk = min(k, n_fos)
+    ranks = [c for c in RANK_COLUMNS if c in modern.columns] + ["taxon_id"]
+    depth_blocks = shared_rank_depth_blocks(modern[ranks], fossil[ranks], block_rows=rows_per_block)
+    names = list(traits)
+    if names:
+        kinds = {n: traits[n].kind for n in names}
+        levels = {n: list(traits[n].levels) for n in names if traits[n].kind == "ordinal" and traits[n].levels}
+        trait_blocks = gower_blocks(modern[names], fossil[names], kinds, levels=levels, block_rows=rows_per_block)
+    else:
+        trait_blocks = ((rows, np.full((rows.stop - rows.start, n_fos), np.nan))
+                        for rows, _ in _row_blocks(n_mod, rows_per_block))
+    by_id = np.argsort(fos_ids, kind="stable")   # ties in similarity go to the smaller taxon_id
+    top = np.empty((n_mod, kk))
+    order = np.empty((n_mod, kk), dtype=np.intp)
+    trait_top = np.empty((n_mod, kk))
+    depth_top = np.empty((n_mod, kk), dtype=np.int8)
+    for (rows, depth), (rows_t, trait_d) in zip(depth_blocks, trait_blocks):
+        assert rows == rows_t
+        tax_d = depth_distance(depth)
+        trait_d = np.asarray(trait_d, dtype=float)
+        dist = np.where(np.isnan(trait_d), tax_d,
+                        np.where(np.isnan(tax_d), trait_d, w * tax_d + (1 - w) * trait_d))
+        del tax_d
+        sim = 1.0 - dist
+        del dist
+        sim[mod_ids[rows][:, None] == fos_ids[None, :]] = -np.inf   # never its own relative
+        sim = np.where(np.isnan(sim), -np.inf, sim)
+        pos = _top_k_stable(sim[:, by_id], kk)
+        cols = by_id[pos]
+        order[rows] = cols
+        top[rows] = np.take_along_axis(sim, cols, axis=1)
+        trait_top[rows] = np.take_along_axis(trait_d, cols, axis=1)
+        depth_top[rows] = np.take_along_axis(depth, cols, axis=1)
+    return top, order, trait_top, depth_top
+
+
+def _row_blocks(n: int, step: int):
+    for start in range(0, n, step):
+        yield slice(start, min(n, start + step)), None
+
+
+def _top_k_stable(sim: np.ndarray, k: int) -> np.ndarray:
+    """Columns of the first ``k`` entries of a stable sort of each row on descending ``sim``.
+
+    The same columns, in the same order, as ``np.argsort(-sim, axis=1, kind='stable')[:, :k]``,
+    found with a partition: every entry above the row's k-th largest value, then entries equal
+    to it in column order until there are ``k``; the ``k`` are then sorted stably.
+    ``sim`` holds no NaN (use -inf).
+    """
+    n, m = sim.shape
+    if k <= 0 or n == 0:
+        return np.empty((n, max(k, 0)), dtype=np.intp)
+    neg = -sim
+    kth = np.take_along_axis(neg, np.argpartition(neg, k - 1, axis=1)[:, k - 1:k], axis=1)
+    below = neg < kth
+    tied = neg == kth
+    need = k - below.sum(axis=1, keepdims=True)
+    chosen = below | (tied & (np.cumsum(tied, axis=1) <= need))
+    cols = np.nonzero(chosen)[1].reshape(n, k)            # ascending column within each row
+    vals = np.take_along_axis(neg, cols, axis=1)
+    return np.take_along_axis(cols, np.argsort(vals, axis=1, kind="stable"), axis=1)
 
 
 def _reasons(modern: pd.DataFrame, fossil: pd.DataFrame, traits: dict[str, TraitSpec],

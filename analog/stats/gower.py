@@ -7,7 +7,7 @@ from scipy import stats
 
 from analog.errors import AnalogError
 
-__all__ = ["gower_distance"]
+__all__ = ["gower_distance", "gower_blocks"]
 
 _KINDS = ("categorical", "ordinal", "numeric", "binary")
 _ORDINAL = ("podani", "ranks")
@@ -86,6 +86,48 @@ def gower_distance(a, b, kinds, *, levels=None, weights=None, ranges=None, ordin
     Podani, J. (1999). Extending Gower's general coefficient of similarity to
     ordinal characters. Taxon 48, 331-340.
     """
+    plan = _plan(a, b, kinds, levels=levels, weights=weights, ranges=ranges, ordinal=ordinal)
+    n, m = len(a), len(b)
+    out = np.empty((n, m))
+    block = max(1, _BLOCK // max(m, 1))
+    for start in range(0, n, block):
+        rows = slice(start, min(n, start + block))
+        out[rows] = _rows(plan, rows)
+    return out
+
+
+def gower_blocks(a, b, kinds, *, block_rows, levels=None, weights=None, ranges=None, ordinal="podani"):
+    """Gower distances of :func:`gower_distance`, one block of rows of ``a`` at a time.
+
+    Parameters
+    ----------
+    a, b, kinds, levels, weights, ranges, ordinal
+        As in :func:`gower_distance`.
+    block_rows : int
+        Rows of ``a`` per block (at least 1).
+
+    Yields
+    ------
+    rows : slice
+        The rows of ``a`` in this block.
+    distance : ndarray, shape (rows.stop - rows.start, len(b))
+        The same numbers as ``gower_distance(a, b, kinds, ...)[rows]``.
+
+    Notes
+    -----
+    Numeric ranges and ordinal ranks are fixed once from all rows of ``a`` and ``b``,
+    so the block size does not change any distance; only one block is held at a time.
+    """
+    plan = _plan(a, b, kinds, levels=levels, weights=weights, ranges=ranges, ordinal=ordinal)
+    n = len(a)
+    step = max(1, int(block_rows))
+    for start in range(0, n, step):
+        rows = slice(start, min(n, start + step))
+        yield rows, _rows(plan, rows)
+
+
+def _plan(a, b, kinds, *, levels, weights, ranges, ordinal):
+    """Checked inputs, encoded columns and weights: ``(encoded, col_weights, m)``."""
     if not isinstance(a, pd.DataFrame) or not isinstance(b, pd.DataFrame):
         raise AnalogError(f"`a` and `b` must be DataFrames; got {type(a).__name__} and "
                           f"{type(b).__name__} instead")
@@ -113,26 +155,25 @@ def gower_distance(a, b, kinds, *, levels=None, weights=None, ranges=None, ordin
     encoded = [_encode(a[col], b[col], col, kind, same, levels.get(col), ranges.get(col), ordinal)
                for col, kind in kinds.items()]
     col_weights = [float(weights.get(col, 1.0)) for col in kinds]
+    return encoded, col_weights, len(b)
 
-    n, m = len(a), len(b)
-    out = np.empty((n, m))
-    block = max(1, _BLOCK // max(m, 1))
-    for start in range(0, n, block):
-        rows = slice(start, min(n, start + block))
-        num = np.zeros((rows.stop - rows.start, m))
-        den = np.zeros_like(num)
-        for (dist, va, vb), w in zip(encoded, col_weights):
-            if w == 0:
-                continue
-            xa = va[rows]
-            valid = ~np.isnan(xa)[:, None] & ~np.isnan(vb)[None, :]
-            with np.errstate(invalid="ignore"):
-                d = dist(xa[:, None], vb[None, :])
-            num += w * np.where(valid, d, 0.0)
-            den += w * valid
-        with np.errstate(invalid="ignore", divide="ignore"):
-            out[rows] = np.where(den > 0, num / den, np.nan)
-    return out
+
+def _rows(plan, rows: slice) -> np.ndarray:
+    """Distances of the rows ``rows`` of ``a`` to every row of ``b``."""
+    encoded, col_weights, m = plan
+    num = np.zeros((rows.stop - rows.start, m))
+    den = np.zeros_like(num)
+    for (dist, va, vb), w in zip(encoded, col_weights):
+        if w == 0:
+            continue
+        xa = va[rows]
+        valid = ~np.isnan(xa)[:, None] & ~np.isnan(vb)[None, :]
+        with np.errstate(invalid="ignore"):
+            d = dist(xa[:, None], vb[None, :])
+        num += w * np.where(valid, d, 0.0)
+        den += w * valid
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(den > 0, num / den, np.nan)
 
 
 def _encode(sa, sb, col, kind, same, order, scale, ordinal):

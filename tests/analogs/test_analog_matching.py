@@ -80,3 +80,87 @@ def test_ties_broken_by_taxon_id_and_taxonomy_only_weight():
 def test_no_candidates():
     m = match_relatives(MODERN, FOSSIL.iloc[:0], TRAITS, n_relatives=3)
     assert m.table.empty and m.n_relatives.tolist() == [0]
+
+
+# --- blocks of modern taxa -------------------------------------------------------------------
+
+def _brute_force_matches(modern, fossil, traits, *, taxonomy_weight, n_relatives, min_similarity):
+    """Whole modern x fossil matrices and a full stable sort (the straightforward way)."""
+    from analog import stats
+    from analog.taxonomy import taxonomic_distance_matrix
+
+    ranks = ["kingdom", "phylum", "class", "order", "family", "genus", "taxon_id"]
+    tax_d, _ = taxonomic_distance_matrix(modern[ranks].reset_index(drop=True), fossil[ranks].reset_index(drop=True))
+    names = list(traits)
+    levels = {n: list(traits[n].levels) for n in names if traits[n].kind == "ordinal"}
+    trait_d = stats.gower_distance(modern[names].reset_index(drop=True), fossil[names].reset_index(drop=True),
+                                   {n: traits[n].kind for n in names}, levels=levels)
+    w = taxonomy_weight
+    sim = 1.0 - np.where(np.isnan(trait_d), tax_d, w * tax_d + (1 - w) * trait_d)
+    mod_ids = modern["taxon_id"].astype(str).to_numpy()
+    fos_ids = fossil["taxon_id"].astype(str).to_numpy()
+    sim[mod_ids[:, None] == fos_ids[None, :]] = -np.inf
+    sim = np.where(np.isnan(sim), -np.inf, sim)
+    by_id = np.argsort(fos_ids, kind="stable")
+    order = by_id[np.argsort(-sim[:, by_id], axis=1, kind="stable")][:, :n_relatives]
+    top = np.take_along_axis(sim, order, axis=1)
+    keep = top >= min_similarity
+    return np.where(keep, order, -1), np.where(keep, top, 0.0)
+
+
+def _sim_taxa():
+    from analog_sim import TRAITS as SIM_TRAITS, simulate_study
+
+    study, _ = simulate_study(11, n_taxa=300)
+    taxa = study.taxa.copy()
+    # coarse numeric values and a few missing traits: many exactly tied similarities
+    taxa["temp_range"] = np.round(taxa["temp_range"] / 3.0)
+    taxa.loc[::17, "depth_zone"] = None
+    taxa.loc[::23, "temp_range"] = np.nan
+    modern = taxa[taxa["extant"]].reset_index(drop=True)
+    return modern, taxa, SIM_TRAITS
+
+
+def test_blocked_matching_equals_whole_matrices_for_any_block_size():
+    # the same relatives, order, similarities, reasons whatever the block size, and the same
+    # as the straightforward whole-matrix computation with a full stable sort
+    modern, fossil, traits = _sim_taxa()
+    kw = dict(taxonomy_weight=0.4, n_relatives=5, min_similarity=0.3)
+    index, similarity = _brute_force_matches(modern, fossil, traits, **kw)
+    tables = []
+    for block_pairs in (None, 1, 7 * len(fossil), 50 * len(fossil) + 3):
+        m = match_relatives(modern, fossil, traits, block_pairs=block_pairs, **kw)
+        np.testing.assert_array_equal(m.index, index)
+        np.testing.assert_array_equal(m.similarity, similarity)
+        tables.append(m.table)
+    assert len(tables[0]) > 0 and (tables[0]["relative_rank"] == 5).any()
+    for t in tables[1:]:
+        pd.testing.assert_frame_equal(t, tables[0])
+
+
+def test_top_k_stable_matches_full_stable_sort():
+    from analog.analogs.matching import _top_k_stable
+
+    rng = np.random.default_rng(3)
+    sim = rng.integers(0, 4, size=(40, 30)) / 4.0          # heavy ties
+    sim[rng.random(sim.shape) < 0.2] = -np.inf               # and many unusable candidates
+    sim[5] = -np.inf                                         # a row with none at all
+    sim[6, ::2] = -0.0                                       # signed zeros tie with zeros
+    sim[6, 1::2] = 0.0
+    for k in (1, 3, 30):
+        np.testing.assert_array_equal(_top_k_stable(sim, k), np.argsort(-sim, axis=1, kind="stable")[:, :k])
+
+
+def test_shared_rank_depth_blocks_equal_whole_matrix():
+    # blank higher ranks are filled from both whole tables, so blocks match the whole matrix
+    from analog.taxonomy import shared_rank_depth, shared_rank_depth_blocks
+
+    modern, fossil, _ = _sim_taxa()
+    modern = modern.copy()
+    modern.loc[::3, "family"] = None          # filled from other rows of the same genus
+    modern.loc[::5, "order"] = ""
+    whole = shared_rank_depth(modern, fossil)
+    for size in (1, 9, len(modern) + 1):
+        parts = list(shared_rank_depth_blocks(modern, fossil, block_rows=size))
+        np.testing.assert_array_equal(np.vstack([d for _, d in parts]), whole)
+    assert (whole == 6).any() and (whole == 7).any()   # same genus and same taxon both occur

@@ -37,7 +37,7 @@ SCALES = {
 }
 GENERATOR_VERSION = 3
 STAGES = ("floor", "intake", "spatial", "spatial_naive", "occupancy", "occupancy_naive", "trajectory",
-          "bootstrap_naive", "whole")
+          "bootstrap_naive", "analog", "whole")
 DEFAULT_CACHE = Path(os.environ.get("ANALOG_BENCH_DATA", Path.home() / ".cache" / "analog-bench"))
 EXTENT = (110.0, -40.0, 150.0, -10.0)  # lon/lat box of the invented country and its seas
 
@@ -432,6 +432,99 @@ def stage_trajectory(folder, args):
             "check": {"extant_with_estimate": n_ext, "series": int(res.occupancy["taxon_id"].nunique())}}
 
 
+def _analog_study(folder):
+    """The Study the analog stage reads, built without the (slow) validation of every input.
+
+    Taxa are typed as intake types them (categorical and ordinal traits as pandas
+    Categoricals in the declared order, binary traits as float 0/1, numeric as float);
+    modern occurrences are not read (the analog stage does not use them).
+    """
+    import pandas as pd
+
+    from analog.intake.config import read_config
+    from analog.intake.findings import Findings
+    from analog.reference import load_intervals
+    from analog.study import RANK_COLUMNS, Study
+
+    config, _ = read_config(folder, Findings())
+    occ, taxa = _fossils_and_taxa(folder)
+    for c in ("taxon_id", "scientificName", "taxonRank", *RANK_COLUMNS):
+        taxa[c] = taxa[c].astype("str")
+    taxa["extant"] = taxa["extant"].astype(bool)
+    for name, spec in config.traits.items():
+        if spec.kind in ("categorical", "ordinal"):
+            taxa[name] = pd.Categorical(taxa[name].astype(object), categories=list(spec.levels),
+                                        ordered=spec.kind == "ordinal")
+        else:
+            taxa[name] = pd.to_numeric(taxa[name]).astype(float)
+    occ["taxon_id"] = occ["taxon_id"].astype("str")
+    return Study(config=config, taxa=taxa, fossil_occurrences=occ, modern_occurrences=pd.DataFrame(),
+                 regions=None, intervals=load_intervals())
+
+
+def _peak_rss_reset() -> bool:
+    """Reset this process's peak resident set size (Linux ``clear_refs``); False if not possible."""
+    try:
+        with open("/proc/self/clear_refs", "w") as fh:
+            fh.write("5")
+        return True
+    except OSError:
+        return False
+
+
+def _vm_hwm_bytes() -> int:
+    """Peak resident set size since the last reset (``VmHWM``), 0 if unknown."""
+    try:
+        with open("/proc/self/status") as fh:
+            for line in fh:
+                if line.startswith("VmHWM:"):
+                    return int(line.split()[1]) * 1024
+    except OSError:
+        pass
+    return 0
+
+
+def stage_analog(folder, args):
+    """The analog-evidence stage alone (fates, selectivity, pooling, matching, analog risk)."""
+    import gc
+    import warnings
+
+    from analog.analogs import run_analog
+    from analog.rng import stage_generators
+
+    study = _analog_study(folder)
+    params = study.config.params("analog")
+    gc.collect()
+    reset = _peak_rss_reset()
+    inputs_rss = _vm_hwm_bytes()
+    marks = {}
+
+    def progress(label, done, total):
+        marks[label] = time.perf_counter()   # the last call: when that step finished
+        _say_step(f"the analog stage ({label} {done}/{total})")
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        t0 = time.perf_counter()
+        marks["start"] = t0
+        res = run_analog(study, params, rng=stage_generators(study.config.seed)["analog"], progress=progress)
+        t_end = time.perf_counter()
+    marks["done"] = t_end
+    order = [k for k in ("start", "fates", "selectivity", "matching", "bootstrap", "done") if k in marks]
+    names = {"fates": "fates", "selectivity": "selectivity fits", "matching": "pooling, leave-one-out, matching",
+             "bootstrap": "point risk and bootstrap", "done": "tables"}
+    detail = {names[b]: marks[b] - marks[a] for a, b in zip(order, order[1:])}
+    out = {"seconds": t_end - t0, "rows": len(study.fossil_occurrences), "detail": detail,
+           "check": {"scored": int(res.risk["analog_p"].notna().sum()), "matches": len(res.matches),
+                     "intervals_used": int(res.interval_weights["used"].sum())}}
+    if reset:
+        out["stage_peak_rss_bytes"] = _vm_hwm_bytes()
+        out["inputs_rss_bytes"] = inputs_rss
+        out["memory_note"] = (f"peak RSS during the stage alone {out['stage_peak_rss_bytes'] / 2 ** 30:.2f} GiB "
+                       f"(inputs in memory before it {inputs_rss / 2 ** 30:.2f} GiB)")
+    return out
+
+
 def stage_bootstrap_naive(folder, args):
     """Straightforward parametric bootstrap, timed two ways on a sample of living series.
 
@@ -611,6 +704,7 @@ def report(scale: str, folder: Path, results: dict, args, load: tuple) -> str:
               "occupancy": "occupancy binning (20 age draws)",
               "occupancy_naive": "  straightforward: per-taxon loop",
               "trajectory": "trajectory stage (whole)", "bootstrap_naive": "  straightforward bootstrap: loops",
+              "analog": "analog stage (whole)",
               "whole": "whole run, no figures"}
     lines = [f"### analog benchmark, {scale} scale",
              "",
@@ -644,6 +738,8 @@ def report(scale: str, folder: Path, results: dict, args, load: tuple) -> str:
                      f"{vs_naive} | {vs_floor} |")
         if r.get("note"):
             notes.append(f"- {labels[stage].strip()}: {r['note']} (measured {r['measured_seconds']:.1f} s).")
+        if r.get("memory_note"):
+            notes.append(f"- {labels[stage].strip()}: {r['memory_note']}.")
         if r.get("detail"):
             parts = ", ".join(f"{k} {v:.1f} s" for k, v in r["detail"].items())
             notes.append(f"- {labels[stage].strip()}: {parts}.")

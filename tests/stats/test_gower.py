@@ -171,3 +171,23 @@ def test_binary_with_three_values_is_rejected():
     a = pd.DataFrame({"flag": ["y", "n", "maybe"]})
     with pytest.raises(AnalogError, match="binary column 'flag' holds 3 distinct values"):
         gower_distance(a, a, {"flag": "binary"})
+
+
+def test_blocks_equal_whole_matrix_for_any_block_size():
+    # ranges and ordinal ranks are fixed from the whole tables, so a block of rows is the
+    # same slice of the whole matrix whatever the block size
+    rng = np.random.default_rng(7)
+    n = 23
+    a = pd.DataFrame({"x": rng.normal(size=n), "c": rng.choice(["p", "q", "r"], n),
+                      "o": rng.choice(["low", "mid", "high"], n), "b": rng.integers(0, 2, n).astype(float)})
+    a.loc[::5, "x"] = np.nan
+    a.loc[::7, "o"] = None
+    b = a.sample(frac=0.7, random_state=1).reset_index(drop=True)
+    kinds = {"x": "numeric", "c": "categorical", "o": "ordinal", "b": "binary"}
+    levels = {"o": ["low", "mid", "high"]}
+    from analog.stats.gower import gower_blocks
+    whole = gower_distance(a, b, kinds, levels=levels)
+    for size in (1, 4, n, 100):
+        parts = list(gower_blocks(a, b, kinds, levels=levels, block_rows=size))
+        assert [r.start for r, _ in parts] == list(range(0, n, size))
+        np.testing.assert_array_equal(np.vstack([d for _, d in parts]), whole)
