@@ -27,10 +27,32 @@ LAYER_TIMESTAMP = "2000-01-01T00:00:00.000Z"   # fixed GeoPackage change time (s
 
 
 def frame_to_csv_bytes(frame: pd.DataFrame) -> bytes:
-    """Deterministic CSV bytes: fixed float format, '\\n' line endings, UTF-8."""
+    """Deterministic CSV bytes: fixed float format, '\\n' line endings, UTF-8.
+
+    Float columns are formatted here, column by column, before pandas writes the frame:
+    the same text as ``to_csv(float_format=FLOAT_FORMAT)`` (``FLOAT_FORMAT % value``, an
+    empty field for NaN), without pandas' per-value formatter calls.
+    """
     buf = io.StringIO()
-    frame.to_csv(buf, index=False, float_format=FLOAT_FORMAT, lineterminator="\n")
+    _preformat_floats(frame).to_csv(buf, index=False, float_format=FLOAT_FORMAT, lineterminator="\n")
     return buf.getvalue().encode("utf-8")
+
+
+def _preformat_floats(frame: pd.DataFrame) -> pd.DataFrame:
+    """A shallow copy of ``frame`` with its NumPy float columns replaced by their CSV text."""
+    import numpy as np
+
+    positions = [i for i, dtype in enumerate(frame.dtypes)
+                 if isinstance(dtype, np.dtype) and dtype.kind == "f"]
+    if not positions or not len(frame):
+        return frame
+    out = frame.copy(deep=False)
+    for i in positions:
+        values = frame.iloc[:, i].to_numpy()
+        text = np.array(list(map(FLOAT_FORMAT.__mod__, values.tolist())), dtype=object)
+        text[np.isnan(values)] = ""
+        out.isetitem(i, text)
+    return out
 
 
 def check_output_target(out: Path) -> None:

@@ -189,12 +189,16 @@ class Column:
 
 @dataclass
 class Table:
-    """A table; ``sortable`` tables get header buttons and the sorting script."""
+    """A table; ``sortable`` tables get header buttons and the sorting script.
+
+    A row is a list of cells, or the row's cells already rendered (a ``str`` of ``<td>``
+    elements, as :func:`_cells_html` writes them), for large tables whose rows repeat.
+    """
 
     id: str
     caption: str
     columns: list[Column]
-    rows: list[list[Cell]]
+    rows: list[list[Cell] | str]
     sortable: bool = True
     sorted_by: int | None = None
     sorted_dir: str = "ascending"
@@ -203,6 +207,61 @@ class Table:
     @property
     def empty(self) -> bool:
         return not self.rows
+
+    @property
+    def body(self) -> markupsafe.Markup:
+        """The ``<tr>`` elements of the table body."""
+        return markupsafe.Markup("".join(
+            f"<tr>\n{row if isinstance(row, str) else _cells_html(row)}</tr>\n" for row in self.rows))
+
+
+# --------------------------------------------------------------------------------------------------
+# markup of table cells (autoescaped as in the templates; large tables are rendered here, not cell
+# by cell in jinja)
+# --------------------------------------------------------------------------------------------------
+def _esc(value: Any) -> str:
+    return str(markupsafe.escape(value))
+
+
+def taxon_html(t: Taxon) -> markupsafe.Markup:
+    """A taxon name, in italics from genus down."""
+    return markupsafe.Markup(f"<i>{_esc(t.name)}</i>" if t.italic else _esc(t.name))
+
+
+def tier_chip_html(tier: Tier) -> markupsafe.Markup:
+    return markupsafe.Markup(f'<span class="tier" style="background-color: {_esc(tier.colour)}; '
+                             f'color: {_esc(tier.ink)};">{_esc(tier.name)}</span>')
+
+
+def _cell_html(c: Cell) -> str:
+    """One ``<td>`` element and its line ending."""
+    sort = "" if c.sort is None else f' data-sort="{_esc(c.sort)}"'
+    title = f' title="{_esc(c.title)}"' if c.title else ""
+    if c.kind == "taxon":
+        return f'<td class="taxon"{sort}>{taxon_html(c.taxon)}</td>\n'
+    if c.kind == "tier":
+        return f'<td data-sort="{_esc(c.sort)}">{tier_chip_html(c.tier)}</td>\n'
+    if c.kind == "interval":
+        bar = ""
+        if c.bar:
+            low, mid, high = c.bar
+            bar = (f'<span class="ibar" aria-hidden="true"><span class="ibar-range" style="left: '
+                   f'{100 * low:.1f}%; width: {100 * (high - low):.1f}%;"></span><span class="ibar-mid" '
+                   f'style="left: {100 * mid:.1f}%;"></span></span>')
+        return (f'<td class="num interval" data-sort="{_esc(c.sort)}"{title}>\n{bar}'
+                f'<span class="itext">{_esc(c.text)}</span></td>\n')
+    if c.kind == "link":
+        return f'<td data-sort="{_esc(c.sort)}"><a href="{_esc(c.href)}">{_esc(c.text)}</a></td>\n'
+    if c.kind == "flag":
+        return f'<td class="flag" data-sort="{_esc(c.sort)}">{_esc(c.text)}</td>\n'
+    if c.kind == "num":
+        return f'<td class="num"{sort}{title}>{_esc(c.text)}</td>\n'
+    return f"<td{sort}{title}>{_esc(c.text)}</td>\n"
+
+
+def _cells_html(cells: list[Cell]) -> str:
+    """A row's cells, each followed by an empty line (as the templates lay them out)."""
+    return "".join(_cell_html(c) + "\n" for c in cells)
 
 
 @dataclass(frozen=True)
@@ -1503,6 +1562,7 @@ def _environment() -> jinja2.Environment:
         keep_trailing_newline=True,
     )
     env.filters.update(num=fmt_num, int=fmt_int, pct=fmt_pct, ratio=fmt_ratio)
+    env.globals.update(taxon_html=taxon_html, tier_chip_html=tier_chip_html)
     return env
 
 
