@@ -290,6 +290,7 @@ class RegionView:
     n_present: int
     n_assessed: int
     standing: str = ""  # how the region compares with the others, in words
+    n_shown: int = 0    # rows of the region page's table of taxa (at most MAX_REGION_ROWS)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -530,20 +531,56 @@ def _ordered_rankings(rankings: pd.DataFrame) -> pd.DataFrame:
     return rankings
 
 
-def _ranking_table(r: _Run, rankings: pd.DataFrame, *, table_id: str, caption: str,
-                   extra: pd.Series | None = None, extra_label: str = "") -> Table:
-    ilabel = _interval_label(r)
-    columns = _risk_columns(ilabel)
-    if extra is not None:
-        columns.append(Column(extra_label, True))
-    rows = []
-    for idx, row in _ordered_rankings(rankings).iterrows():
-        cells = _risk_cells(r, row, ilabel)
-        if extra is not None:
-            v = extra.get(idx)
-            cells.append(Cell(fmt_int(v), sort_key(v), "num"))
-        rows.append(cells)
-    return Table(table_id, caption, columns, rows, sorted_by=0, sorted_dir="ascending")
+class _RiskRows:
+    """The risk-table cells of every row of the rankings, rendered once, in combined-rank order.
+
+    The study-wide table and every region's tables show the same cells for a taxon (ranks, tiers
+    and scores are those of the whole study), so each row is rendered once and reused.
+    """
+
+    def __init__(self, r: _Run, rankings: pd.DataFrame):
+        ilabel = _interval_label(r)
+        self.columns = _risk_columns(ilabel)
+        self.ordered = _ordered_rankings(rankings)
+        self.cells: list[list[str]] = []   # per row: the <td> markup of each column, each followed by a blank line
+        self.assessed: list[bool] = []     # has a tier (rows without one are left out of the top tables)
+        for row in self.ordered.to_dict("records"):
+            cells = _risk_cells(r, row, ilabel)
+            self.cells.append([_cell_html(c) + "\n" for c in cells])
+            self.assessed.append(cells[2].tier is not NOT_ASSESSED)
+        self._joined: list[str] | None = None
+
+    def __len__(self) -> int:
+        return len(self.cells)
+
+    def row(self, i: int) -> str:
+        """Every cell of row ``i``."""
+        if self._joined is None:
+            self._joined = ["".join(cells) for cells in self.cells]
+        return self._joined[i]
+
+    def table(self, *, table_id: str, caption: str, limit: int, note: str = "") -> Table:
+        """The first ``limit`` rows as a sortable table."""
+        rows = [self.row(i) for i in range(min(limit, len(self)))]
+        return Table(table_id, caption, list(self.columns), rows, sorted_by=0, sorted_dir="ascending", note=note)
+
+
+MAX_RANKING_ROWS = 2000  # rows of the study-wide ranked table in briefing.html; rankings.csv has every taxon
+MAX_REGION_ROWS = 500    # rows of a region page's table of taxa; region_taxa.csv has every taxon recorded
+TOP_REGION_ROWS = 10     # most vulnerable taxa per region in briefing.html
+
+
+def _ranking_table(r: _Run, risk: _RiskRows) -> Table:
+    n = len(risk)
+    if n <= MAX_RANKING_ROWS:
+        return risk.table(table_id="ranking", caption="All living taxa in the study, by combined relative "
+                                                      "vulnerability", limit=n)
+    return risk.table(table_id="ranking", limit=MAX_RANKING_ROWS,
+                      caption=f"The {MAX_RANKING_ROWS:,} most vulnerable of the {n:,} living taxa in the study, by "
+                              "combined relative vulnerability",
+                      note=f"Only the first {MAX_RANKING_ROWS:,} taxa in combined-rank order are shown, and sorting "
+                           "reorders these rows only. rankings.csv in the same output folder lists all "
+                           f"{n:,} taxa with every score.")
 
 
 def _rankings(r: _Run) -> pd.DataFrame | None:
@@ -682,6 +719,7 @@ def _summary(r: _Run, rankings: pd.DataFrame | None, regions: list[RegionView]) 
         assessed = _assessed(rankings)
         ev = rankings["evidence"].astype(str).value_counts() if "evidence" in rankings.columns else pd.Series(dtype=int)
         out["n_taxa"] = len(rankings)
+        out["shown"] = min(len(rankings), MAX_RANKING_ROWS)  # rows of the ranked table
         out["n_assessed"] = len(assessed)
         out["n_both"] = int(ev.get("both", 0))
         out["n_analog_only"] = int(ev.get("analog only", 0))
@@ -807,18 +845,93 @@ def _region_inset(r: _Run, region_id: str, name: str) -> FigureRef | None:
                        caption=f"{name} (outlined) within the study area.", size="inset")
 
 
-def _regions(r: _Run, rankings: pd.DataFrame | None, *, draw_insets: bool) -> list[RegionView]:
+def _present_rows(presence: pd.DataFrame | None) -> pd.DataFrame | None:
+    if presence is None or "present" not in presence.columns:
+        return presence
+    flag = presence["present"]
+    if flag.dtype == bool:
+        return presence[flag.to_numpy()]
+    return presence[flag.map(lambda v: str(v).strip().lower() in {"true", "1", "yes"}).to_numpy(dtype=bool)]
+
+
+def _region_slices(presence: pd.DataFrame, risk: _RiskRows) -> dict[str, tuple[np.ndarray, np.ndarray]] | None:
+    """region_id -> (rows of ``risk`` recorded there, in combined-rank order; records of each);
+    None when the tables lack the id columns.
+
+    One join of the (region, taxon) pairs to the rankings and one sort, instead of filtering
+    the whole presence table and the rankings once per region.
+    """
+    ordered = risk.ordered
+    if "region_id" not in presence.columns or "taxon_id" not in presence.columns or "taxon_id" not in ordered:
+        return None
+    pairs = pd.DataFrame({"region_id": presence["region_id"].astype(str).to_numpy(dtype=object),
+                          "taxon_id": presence["taxon_id"].astype(str).to_numpy(dtype=object)})
+    if "n_records" in presence.columns:
+        pairs["n"] = presence["n_records"].to_numpy()
+        counts = pairs.groupby(["region_id", "taxon_id"], sort=False)["n"].sum()
+    else:
+        counts = pairs.groupby(["region_id", "taxon_id"], sort=False).size()
+    counts = counts.rename("n").reset_index()
+    rows = pd.DataFrame({"taxon_id": ordered["taxon_id"].astype(str).to_numpy(dtype=object),
+                         "row": np.arange(len(ordered))})
+    hits = counts.merge(rows, on="taxon_id", how="inner").sort_values(["region_id", "row"], kind="mergesort")
+    out = {}
+    region = hits["region_id"].to_numpy()
+    row = hits["row"].to_numpy()
+    n = hits["n"].to_numpy()
+    starts = np.flatnonzero(np.r_[True, region[1:] != region[:-1]]) if len(region) else np.zeros(0, dtype=int)
+    for a, b in zip(starts, np.r_[starts[1:], len(region)]):
+        out[region[a]] = (row[a:b], n[a:b])
+    return out
+
+
+def _records_cell(v: Any) -> str:
+    return _cell_html(Cell(fmt_int(v), sort_key(v), "num")) + "\n"
+
+
+def _region_tables(risk: _RiskRows, rows: np.ndarray, records: np.ndarray, *, slug: str,
+                   name: str) -> tuple[Table, Table]:
+    """The region page's table of taxa recorded there and the briefing's table of the most vulnerable."""
+    columns = list(risk.columns) + [Column("Records here", True)]
+    n = len(rows)
+    shown = min(n, MAX_REGION_ROWS)
+    present_rows = [risk.row(i) + _records_cell(v) for i, v in zip(rows[:shown].tolist(), records[:shown].tolist())]
+    if n > shown:
+        caption = (f"The {shown:,} most vulnerable of the {n:,} living taxa recorded in {name}, in combined-rank "
+                   "order")
+        note = (f"Only the first {shown:,} taxa in combined-rank order are shown, and sorting reorders these rows "
+                "only. region_taxa.csv in the output folder lists every taxon recorded in each region.")
+    else:
+        caption, note = f"Living taxa recorded in {name}, in combined-rank order", ""
+    present = Table(f"taxa-{slug}", caption, columns, present_rows, sorted_by=0, sorted_dir="ascending", note=note)
+    keep = [0, 1, 2, 3, 4, 7]  # rank, taxon, tier, combined, interval, evidence (then records here)
+    top_rows = []
+    for i, v in zip(rows.tolist(), records.tolist()):
+        if len(top_rows) == TOP_REGION_ROWS:
+            break
+        if risk.assessed[i]:
+            cells = risk.cells[i]
+            top_rows.append("".join(cells[k] for k in keep) + _records_cell(v))
+    top = Table(f"top-{slug}", f"Most vulnerable taxa recorded in {name} (first {len(top_rows)})",
+                [columns[k] for k in keep + [8]], top_rows, sortable=False)
+    return present, top
+
+
+def _regions(r: _Run, risk: _RiskRows | None, *, draw_insets: bool) -> list[RegionView]:
     summary = r.table("regions", "region_summary.csv")
     if summary is None or "region_id" not in summary.columns:
         return []
-    presence = r.table("regions", "region_taxa.csv")
-    if presence is not None and "present" in presence.columns:
-        present_mask = presence["present"].map(lambda v: str(v).strip().lower() in {"true", "1", "yes"})
-        presence = presence[present_mask]
+    presence = _present_rows(r.table("regions", "region_taxa.csv"))
+    slices = _region_slices(presence, risk) if risk is not None and presence is not None else None
+    if risk is not None and "evidence" in risk.ordered.columns:
+        assessed = (risk.ordered["evidence"].astype(str) != "none").to_numpy()
+    elif risk is not None:
+        assessed = np.ones(len(risk), dtype=bool)
     taken: set[str] = set()
     views = []
     rows = summary.to_dict("records")
     rows.sort(key=lambda row: (_text(row.get("name"), str(row["region_id"])).lower(), str(row["region_id"])))
+    empty = (np.zeros(0, dtype=np.int64), np.zeros(0))
     for row in rows:
         rid = str(row["region_id"])
         name = _text(row.get("name")) or rid
@@ -833,27 +946,17 @@ def _regions(r: _Run, rankings: pd.DataFrame | None, *, draw_insets: bool) -> li
             if (f"analog_{suffix}" in row or f"trajectory_{suffix}" in row) and label not in seen:
                 seen.add(label)
                 by_line.append((label, f(a), f(t)))
-        ids = presence.loc[presence["region_id"].astype(str) == rid] if presence is not None else None
-        if rankings is not None and ids is not None and "taxon_id" in rankings.columns:
-            counts = ids.groupby(ids["taxon_id"].astype(str))["n_records"].sum() if "n_records" in ids.columns \
-                else ids.groupby(ids["taxon_id"].astype(str)).size()
-            here = rankings[rankings["taxon_id"].astype(str).isin(set(counts.index))]
-            extra = pd.Series(here["taxon_id"].astype(str).map(counts).to_numpy(), index=here.index)
-            present = _ranking_table(r, here, table_id=f"taxa-{slug}",
-                                     caption=f"Living taxa recorded in {name}, in combined-rank order",
-                                     extra=extra, extra_label="Records here")
-            keep = [0, 1, 2, 3, 4, 7, 8]  # rank, taxon, tier, combined, interval, evidence, records here
-            top_rows = [[cells[i] for i in keep] for cells in present.rows if cells[2].tier is not NOT_ASSESSED][:10]
-            top = Table(f"top-{slug}", f"Most vulnerable taxa recorded in {name} (first {len(top_rows)})",
-                        [present.columns[i] for i in keep], top_rows, sortable=False)
-            n_present, n_assessed = len(here), len(_assessed(here))
+        if slices is not None:
+            here, records = slices.get(rid, empty)
+            present, top = _region_tables(risk, here, records, slug=slug, name=name)
+            n_present, n_assessed = len(here), int(assessed[here].sum())
         else:
             present = Table(f"taxa-{slug}", f"Living taxa recorded in {name}", [], [])
             top = Table(f"top-{slug}", f"Most vulnerable taxa recorded in {name}", [], [], sortable=False)
             n_present = n_assessed = 0
         inset = _region_inset(r, rid, name) if draw_insets else None
         views.append(RegionView(rid, slug, name, flagged, flag, indices, by_line, top, present, inset,
-                                n_present, n_assessed))
+                                n_present, n_assessed, n_shown=len(present.rows)))
     _standing(views, rows)
     return views
 
@@ -1602,7 +1705,8 @@ def build_briefing(run: Any, *, figures: Mapping[str, Mapping[str, bytes]] | Non
     if draw_insets is None:
         draw_insets = bool(r.figures)
     rankings = _rankings(r)
-    regions = _regions(r, rankings, draw_insets=draw_insets)
+    risk = _RiskRows(r, rankings) if rankings is not None else None
+    regions = _regions(r, risk, draw_insets=draw_insets)
     figs = _section_figures(r)
     config = r.config
     ilabel = _interval_label(r)
@@ -1622,9 +1726,7 @@ def build_briefing(run: Any, *, figures: Mapping[str, Mapping[str, bytes]] | Non
         "missing": MISSING,
         "no_figures": "" if r.figures or draw_insets else "No figures were drawn for this run; the tables are complete.",
     }
-    ranking_table = _ranking_table(r, rankings, table_id="ranking",
-                                   caption="All living taxa in the study, by combined relative vulnerability") \
-        if rankings is not None else None
+    ranking_table = _ranking_table(r, risk) if risk is not None else None
     context = {
         **common,
         "summary": _summary(r, rankings, regions),
