@@ -10,7 +10,11 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-__all__ = ["FateDraws", "compute_fates", "draw_ages", "first_last", "window_fates"]
+__all__ = ["FateDraws", "compute_fates", "draw_ages", "first_last", "window_fates", "DRAW_BLOCK_VALUES"]
+
+# point ages (draws x occurrences) held at once while computing first and last appearances:
+# 8 million float64 values, 64 MB per array
+DRAW_BLOCK_VALUES = 8_000_000
 
 
 @dataclass(frozen=True)
@@ -144,7 +148,7 @@ def window_fates(first: np.ndarray, last: np.ndarray, oldest: np.ndarray, younge
 def compute_fates(taxa: pd.DataFrame, occurrences: pd.DataFrame, intervals: pd.DataFrame, *,
                   age_draws: int = 20, at_risk_rule: str = "overlap", drop_singletons: bool = True,
                   range_through: bool = True, max_age_range: float = 0.0,
-                  rng: np.random.Generator) -> FateDraws:
+                  rng: np.random.Generator, draw_block: int | None = None) -> FateDraws:
     """Fates of every fossil taxon in every interval, over age draws.
 
     Parameters
@@ -166,6 +170,10 @@ def compute_fates(taxa: pd.DataFrame, occurrences: pd.DataFrame, intervals: pd.D
         Occurrences whose age range (``oldest_ma - youngest_ma``) is wider than this many
         Myr are left out (0 keeps all). A taxon known only from such occurrences has no fates.
     rng : numpy.random.Generator
+    draw_block : int, optional
+        Age draws computed at once (default: as many as keep one block of point ages near
+        ``DRAW_BLOCK_VALUES`` numbers). The block size changes no result: the generator
+        fills consecutive blocks with the same numbers as one array of every draw.
 
     Returns
     -------
@@ -188,42 +196,63 @@ def compute_fates(taxa: pd.DataFrame, occurrences: pd.DataFrame, intervals: pd.D
     catastrophes in the fossil record. GSA Special Paper 190, 291-296.
     """
     coarse = 0
-    all_ids = np.unique(occurrences["taxon_id"].astype(str).to_numpy())
+    # taxon codes by hashing (pandas) and sorting only the distinct ids: np.unique on millions
+    # of strings sorts them all, and np.setdiff1d on object arrays compares every pair
+    raw_codes, distinct = pd.factorize(occurrences["taxon_id"].astype(str).to_numpy())
+    distinct = np.asarray(distinct, dtype=object)
+    oldest = occurrences["oldest_ma"].to_numpy(dtype=float)
+    youngest = occurrences["youngest_ma"].to_numpy(dtype=float)
     if max_age_range and max_age_range > 0:
-        width = occurrences["oldest_ma"].to_numpy(dtype=float) - occurrences["youngest_ma"].to_numpy(dtype=float)
-        fine = width <= max_age_range
+        fine = (oldest - youngest) <= max_age_range
         coarse = int((~fine).sum())
-        occurrences = occurrences[fine]
-    occ_ids = occurrences["taxon_id"].astype(str).to_numpy()
-    taxon_ids = np.unique(occ_ids)
-    codes = np.searchsorted(taxon_ids, occ_ids)
+        raw_codes, oldest, youngest = raw_codes[fine], oldest[fine], youngest[fine]
+    present = np.zeros(distinct.size, dtype=bool)
+    present[raw_codes] = True
+    kept = np.flatnonzero(present)
+    kept = kept[np.argsort(distinct[kept], kind="stable")]     # sorted ids, as np.unique gives them
+    taxon_ids = distinct[kept]
+    gone = np.flatnonzero(~present)
+    coarse_only = tuple(distinct[gone[np.argsort(distinct[gone], kind="stable")]])
+    position = np.empty(distinct.size, dtype=np.intp)
+    position[kept] = np.arange(kept.size)
+    codes = position[raw_codes]
     order = np.argsort(codes, kind="stable")
     codes = codes[order]
-    oldest = occurrences["oldest_ma"].to_numpy(dtype=float)[order]
-    youngest = occurrences["youngest_ma"].to_numpy(dtype=float)[order]
+    oldest = oldest[order]
+    youngest = youngest[order]
     int_ids = intervals["interval_id"].astype(str).to_numpy()
     w_old = intervals["oldest_ma"].to_numpy(dtype=float)
     w_young = intervals["youngest_ma"].to_numpy(dtype=float)
     n_draws = int(age_draws)
-    coarse_only = tuple(np.setdiff1d(all_ids, taxon_ids))
     if taxon_ids.size == 0:
         empty = np.zeros((n_draws, len(int_ids), 0), dtype=bool)
         return FateDraws(taxon_ids, int_ids, empty, empty.copy(), np.zeros((n_draws, 0)), np.zeros((n_draws, 0)),
                          coarse, coarse_only)
 
     starts = np.flatnonzero(np.r_[True, codes[1:] != codes[:-1]])
-    ages = draw_ages(oldest, youngest, n_draws=n_draws, rng=rng)
-    first, last = first_last(ages, starts)
+    first = np.empty((n_draws, taxon_ids.size))
+    last = np.empty((n_draws, taxon_ids.size))
+    sampled = None if range_through else np.empty((n_draws, len(int_ids), taxon_ids.size), dtype=bool)
+    # draws in blocks: only a block of point ages (draws x occurrences) is held at a time; the
+    # generator fills consecutive blocks with the same numbers as one (draws, occurrences) array
+    step = draw_block if draw_block is not None else DRAW_BLOCK_VALUES // max(oldest.size, 1)
+    step = min(max(1, int(step)), n_draws)
+    for d0 in range(0, n_draws, step):
+        d1 = min(n_draws, d0 + step)
+        if n_draws == 1:
+            ages = draw_ages(oldest, youngest, n_draws=1, rng=rng)      # range midpoints
+        else:
+            ages = youngest[None, :] + rng.random((d1 - d0, oldest.size)) * (oldest - youngest)[None, :]
+        first[d0:d1], last[d0:d1] = first_last(ages, starts)
+        if sampled is not None:
+            for i in range(len(int_ids)):  # few intervals; each step is vectorized over draws and occurrences
+                inside = (ages > w_young[i]) & (ages <= w_old[i])
+                sampled[d0:d1, i, :] = np.logical_or.reduceat(inside, starts, axis=1)
+        del ages
     extant = (taxa.set_index(taxa["taxon_id"].astype(str))["extant"]
               .reindex(taxon_ids).fillna(False).to_numpy(dtype=bool))
     last[:, extant] = 0.0
 
-    sampled = None
-    if not range_through:
-        sampled = np.empty((n_draws, len(int_ids), taxon_ids.size), dtype=bool)
-        for i in range(len(int_ids)):  # few intervals; each step is vectorized over draws and occurrences
-            inside = (ages > w_young[i]) & (ages <= w_old[i])
-            sampled[:, i, :] = np.logical_or.reduceat(inside, starts, axis=1)
     at_risk, lost = window_fates(first, last, w_old, w_young, at_risk_rule=at_risk_rule,
                                  drop_singletons=drop_singletons, sampled=sampled)
     return FateDraws(taxon_ids, int_ids, at_risk, lost, first, last, coarse, coarse_only)

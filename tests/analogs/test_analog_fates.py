@@ -117,3 +117,43 @@ def test_coarsely_dated_occurrences_are_left_out():
     assert fd.lost[0, 0].tolist() == [True, True]
     everything = compute_fates(taxa, occ, intervals, age_draws=1, max_age_range=0.0, rng=None)
     assert everything.lost[0, 0].tolist() == [True, False, False]   # B's midpoint 8 Ma: survived
+
+
+@pytest.mark.parametrize("range_through", [True, False])
+def test_draw_blocks_give_the_same_fates_and_leave_the_generator_in_the_same_state(range_through):
+    # age draws computed in blocks of draws use the generator's numbers in the same order as
+    # one array of every draw: fates, appearances and the generator's next numbers agree
+    from analog_sim import simulate_study
+
+    study, _ = simulate_study(5, n_taxa=200)
+    occ = study.fossil_occurrences.sample(frac=1.0, random_state=3)   # not grouped by taxon
+    occ.loc[occ.index[::9], "oldest_ma"] += 30.0                        # some too coarse to use
+    results, after = [], []
+    for block in (None, 1, 3, 7, 50):
+        rng = np.random.default_rng(42)
+        fd = compute_fates(study.taxa, occ, study.intervals, age_draws=7, range_through=range_through,
+                           max_age_range=10.0, rng=rng, draw_block=block)
+        results.append(fd)
+        after.append(rng.random(3))
+    ref = results[0]
+    assert ref.coarse_occurrences > 0 and ref.at_risk.any() and ref.lost.any()
+    for fd, nxt in zip(results[1:], after[1:]):
+        np.testing.assert_array_equal(fd.taxon_ids, ref.taxon_ids)
+        for name in ("at_risk", "lost", "first", "last"):
+            np.testing.assert_array_equal(getattr(fd, name), getattr(ref, name))
+        assert fd.coarse_only_taxa == ref.coarse_only_taxa
+        np.testing.assert_array_equal(nxt, after[0])
+
+
+def test_taxon_order_and_coarse_only_taxa():
+    # taxa are sorted by id whatever the row order; a taxon known only from coarse ranges has no fates
+    taxa = pd.DataFrame({"taxon_id": ["b", "a", "c", "d"], "extant": False})
+    occ = pd.DataFrame({"taxon_id": ["c", "b", "a", "c", "d", "b"],
+                        "oldest_ma": [20.0, 15.0, 40.0, 11.0, 30.0, 11.0],
+                        "youngest_ma": [20.0, 15.0, 5.0, 11.0, 30.0, 11.0]})
+    intervals = pd.DataFrame({"interval_id": ["W"], "oldest_ma": [12.0], "youngest_ma": [10.0]})
+    fd = compute_fates(taxa, occ, intervals, age_draws=2, max_age_range=10.0, rng=np.random.default_rng(1))
+    assert fd.taxon_ids.tolist() == ["b", "c", "d"]
+    assert fd.coarse_only_taxa == ("a",) and fd.coarse_occurrences == 1
+    np.testing.assert_array_equal(fd.first[0], [15.0, 20.0, 30.0])
+    np.testing.assert_array_equal(fd.last[0], [11.0, 11.0, 30.0])
