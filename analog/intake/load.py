@@ -12,7 +12,7 @@ from .intervals import check_intervals, merge_intervals
 from .occurrences import check_fossils, check_modern
 from .readers import read_layer, read_table, sha256_of
 from .regions import check_regions
-from .schema import load_table_schema
+from .schema import concat_converted, convert_fields, load_table_schema, repeated_text_fields
 from .taxa import check_taxa
 
 __all__ = ["load_study", "check_study"]
@@ -20,7 +20,7 @@ __all__ = ["load_study", "check_study"]
 _STEPS = ("study.toml", "taxa", "fossil_occurrences", "modern_occurrences", "regions", "intervals", "context")
 
 
-def load_study(folder, *, progress=None) -> Study:
+def load_study(folder, *, progress=None, chunk_bytes: int | None = None) -> Study:
     """Read and check a study folder.
 
     Parameters
@@ -29,6 +29,9 @@ def load_study(folder, *, progress=None) -> Study:
         Folder holding ``study.toml`` and the input files it names.
     progress : callable, optional
         ``progress(label, done, total)`` called as each input is checked.
+    chunk_bytes : int, optional
+        Bytes of a CSV/TSV occurrence table parsed and checked at a time (default
+        :data:`analog.intake.readers.CHUNK_BYTES`); results do not depend on it.
 
     Returns
     -------
@@ -51,13 +54,13 @@ def load_study(folder, *, progress=None) -> Study:
     for layers, the feature number. Per file, column and fault at most 20 rows
     are listed, then one line counting the rest.
     """
-    study, findings = _load(folder, progress)
+    study, findings = _load(folder, progress, chunk_bytes)
     for message in findings.warnings:
         warnings.warn(message, AnalogWarning, stacklevel=2)
     return study
 
 
-def check_study(folder, *, progress=None) -> tuple[list[Problem], list[str]]:
+def check_study(folder, *, progress=None, chunk_bytes: int | None = None) -> tuple[list[Problem], list[str]]:
     """Problems and warnings of a study folder, without raising.
 
     Returns
@@ -67,7 +70,7 @@ def check_study(folder, *, progress=None) -> tuple[list[Problem], list[str]]:
     warnings : list of str
     """
     try:
-        _, findings = _load(folder, progress)
+        _, findings = _load(folder, progress, chunk_bytes)
     except InputError as exc:
         return exc.problems, []
     return [], list(findings.warnings)
@@ -78,7 +81,7 @@ def _label(config, key: str, raw: dict) -> str:
     return text if isinstance(text, str) else str(config.inputs[key].name)
 
 
-def _load(folder, progress):
+def _load(folder, progress, chunk_bytes=None):
     findings = Findings()
     total = len(_STEPS)
 
@@ -91,17 +94,23 @@ def _load(folder, progress):
     files: list[InputFile] = []
     inputs = raw.get("inputs", {}) if isinstance(raw.get("inputs"), dict) else {}
 
-    def table(key):
+    def table(key, convert=False):
         if key not in config.inputs:
             return None, None
         label = _label(config, key, raw)
         schema = load_table_schema(key)
         wanted = None if key == "taxa" else set(schema.field_names)
-        tf = read_table(config.inputs[key], label=label, key=key, findings=findings, wanted=wanted)
+        typing = None
+        if convert:  # large tables: typed chunk by chunk as they are read (see analog.intake.schema)
+            def typing(frame, start, delimiter):
+                return convert_fields(frame, schema, decimal_comma=delimiter == ";", start=start)
+        tf = read_table(config.inputs[key], label=label, key=key, findings=findings, wanted=wanted,
+                        categorical=repeated_text_fields(schema) if convert else (), convert=typing,
+                        chunk_bytes=chunk_bytes)
         if tf is None:
             return None, label
-        files.append(InputFile(key, config.inputs[key], sha256_of(config.inputs[key]), len(tf.frame)))
-        if len(tf.frame) == 0:
+        files.append(InputFile(key, config.inputs[key], sha256_of(config.inputs[key]), tf.rows))
+        if tf.rows == 0:
             findings.add(label, "a header but no data rows", f"at least one row of {key}",
                          "fill the table, or check that the right file is named in [inputs]", row=2)
             return None, label
@@ -115,15 +124,15 @@ def _load(folder, progress):
                                   decimal_comma=tf.delimiter == ";")
     tick(1)
     fossils = modern = None
-    tf, label = table("fossil_occurrences")
+    tf, label = table("fossil_occurrences", convert=True)
     if tf is not None:
-        fossils = check_fossils(tf.frame, tf.columns, load_table_schema("fossil_occurrences"), taxa, label, findings,
-                                decimal_comma=tf.delimiter == ";")
+        fossils = check_fossils(concat_converted(tf.parts), tf.columns, load_table_schema("fossil_occurrences"),
+                                taxa, label, findings, decimal_comma=tf.delimiter == ";")
     tick(2)
-    tf, label = table("modern_occurrences")
+    tf, label = table("modern_occurrences", convert=True)
     if tf is not None:
-        modern = check_modern(tf.frame, tf.columns, load_table_schema("modern_occurrences"), taxa, label, findings,
-                              decimal_comma=tf.delimiter == ";")
+        modern = check_modern(concat_converted(tf.parts), tf.columns, load_table_schema("modern_occurrences"),
+                              taxa, label, findings, decimal_comma=tf.delimiter == ";")
     tick(3)
     # regions
     regions = None

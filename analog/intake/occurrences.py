@@ -6,7 +6,8 @@ import pandas as pd
 
 from ..errors import AnalogError
 from .findings import Findings, show
-from .schema import TableSchema, check_columns, check_fields, clean_text, close_names
+from .schema import (ConvertedTable, TableSchema, _factor, as_text, check_columns, check_converted, close_names,
+                     convert_fields)
 from .taxa import name_key, on_uniques
 
 __all__ = ["check_fossils", "check_modern", "link_taxa", "canonical_name"]
@@ -41,27 +42,42 @@ def _on_missing(schema: TableSchema, column: str) -> str:
     return "error"
 
 
+def _positions(values: pd.Series, ids: pd.Index) -> np.ndarray:
+    """Position in ``ids`` of each value (-1 = blank or not found), looked up once per distinct value."""
+    codes, uniques = _factor(values)
+    lut = np.append(ids.get_indexer(uniques), -1)
+    return lut[np.asarray(codes, dtype=np.int64)]
+
+
+def _ids_at(ids: pd.Index, pos: np.ndarray, index) -> pd.Series:
+    """Taxon identifiers at positions ``pos`` (-1 = NA) as a ``str`` column."""
+    return as_text(pd.Series(pd.Categorical.from_codes(pos, categories=ids), index=index))
+
+
 def link_taxa(typed: pd.DataFrame, taxa: pd.DataFrame, schema: TableSchema, file: str, findings: Findings, *,
               role: str) -> tuple[pd.Series, np.ndarray]:
     """taxon_id of each row (by id, else by name) and the rows to leave out.
 
     Unknown ``taxon_id`` values are problems. Unmatched names are problems or, where the
     schema's foreign key says ``onMissing: drop``, rows left out and recorded.
+    Names are compared once per distinct name; the rows follow by their codes.
     """
     schema.rule("taxon_reference")
-    rows = typed.index.to_numpy() + 2
+    rows = np.arange(len(typed)) + 2
+    ids = pd.Index(taxa["taxon_id"].astype("str")).dropna().drop_duplicates()
     given_id = typed["taxon_id"]
     names = typed["scientificName"]
     has_id = given_id.notna().to_numpy()
-    known = given_id.isin(set(taxa["taxon_id"])).to_numpy()
-    out = given_id.where(has_id & known)
+    pos = _positions(given_id, ids)
+    known = pos >= 0
+    pos = np.where(has_id & known, pos, -1)
     drop = np.zeros(len(typed), bool)
 
     bad = has_id & ~known
     if bad.any():
-        ids = taxa["taxon_id"].tolist()
+        id_list = taxa["taxon_id"].tolist()
         findings.rows(file, "taxon_id", rows[bad],
-                      [f"{show(v)}" + (f" (did you mean '{c[0]}'?)" if (c := close_names(str(v), ids)) else "")
+                      [f"{show(v)}" + (f" (did you mean '{c[0]}'?)" if (c := close_names(str(v), id_list)) else "")
                        for v in given_id[bad].head(20)],
                       "a taxon_id of the taxa table", "correct the taxon_id or add the taxon to the taxa table")
 
@@ -71,30 +87,34 @@ def link_taxa(typed: pd.DataFrame, taxa: pd.DataFrame, schema: TableSchema, file
         findings.rows(file, "taxon_id / scientificName", rows[none], "no taxon_id and no scientificName",
                       "a taxon_id or a scientificName in every row", "fill one of the two columns in these rows")
     if not by_name.any():
-        return out, drop
+        return _ids_at(ids, pos, typed.index), drop
 
     exact, ambiguous = _unique_map(name_key(taxa["scientificName"]), taxa["taxon_id"])
     canon, ambiguous_canon = _unique_map(canonical_name(taxa["scientificName"]), taxa["taxon_id"])
     sub = names[by_name]
-    key = name_key(sub)
-    hit = key.map(exact)
-    miss = hit.isna()
-    n_exact = int((~miss).sum())
+    codes, uniques = _factor(sub)
+    codes = np.asarray(codes, dtype=np.int64)
+    per_name = np.bincount(codes[codes >= 0], minlength=len(uniques))  # rows of each distinct name
+    hit = name_key(uniques).map(exact)
+    miss = hit.isna().to_numpy()
+    n_exact = int(per_name[~miss].sum())
     if miss.any():
-        ckey = canonical_name(sub[miss])
+        ckey = canonical_name(uniques[miss])
         chit = ckey.map(canon).where(~ckey.isin(ambiguous_canon))
+        by_canon = np.zeros(len(uniques), bool)
+        by_canon[np.flatnonzero(miss)] = chit.notna().to_numpy()
         hit = hit.fillna(chit)
-        n_canon = int(chit.notna().sum())
+        n_canon = int(per_name[by_canon].sum())
         if n_canon:
+            first = int(np.argmax(by_canon[codes]))
             findings.warn(f"{file}: {n_canon} row(s) matched to taxa after leaving out the authorship "
-                          f"of scientificName (e.g. {show(sub[miss][chit.notna()].iloc[0])})")
-    out = out.copy()
-    out.loc[hit.index] = hit
-    unmatched = by_name.copy()
-    unmatched[by_name] = hit.isna().to_numpy()
+                          f"of scientificName (e.g. {show(sub.iloc[first])})")
+    pos[by_name] = ids.get_indexer(hit)[codes]
+    unmatched = by_name & (pos < 0)
+    out = _ids_at(ids, pos, typed.index)
     if not unmatched.any():
         return out, drop
-    um_names = names[unmatched]
+    um_names = as_text(names[unmatched])
     is_amb = name_key(um_names).isin(ambiguous).to_numpy()
     policy = _on_missing(schema, "scientificName")
     if policy == "drop":
@@ -148,6 +168,7 @@ def _stage_ages(typed, schema: TableSchema, rows, file, findings: Findings):
     reported = np.zeros(len(typed), bool)
     if not has_stage.any():
         return old, young, reported
+    early, late = as_text(early), as_text(late)
     try:
         from ..reference import resolve_stages, suggest_stages
     except ImportError as exc:  # pragma: no cover - packaging fault
@@ -184,17 +205,28 @@ def _stage_ages(typed, schema: TableSchema, rows, file, findings: Findings):
     return old, young, reported
 
 
-def check_fossils(df: pd.DataFrame, columns, schema: TableSchema, taxa: pd.DataFrame | None, file: str,
+def _converted(table, schema: TableSchema, decimal_comma: bool) -> ConvertedTable:
+    if isinstance(table, ConvertedTable):
+        return table
+    return convert_fields(table.reset_index(drop=True), schema, decimal_comma=decimal_comma)
+
+
+def check_fossils(table, columns, schema: TableSchema, taxa: pd.DataFrame | None, file: str,
                   findings: Findings, *, decimal_comma: bool = False) -> pd.DataFrame | None:
-    """Typed fossil occurrences (columns as in analog.study), or ``None`` if columns are missing."""
+    """Typed fossil occurrences (columns as in analog.study), or ``None`` if columns are missing.
+
+    ``table`` is the raw table (DataFrame) or its chunks typed by
+    :func:`~analog.intake.schema.convert_fields` and joined.
+    """
     ok = check_columns(columns, schema, file, findings)
-    typed, _ = check_fields(df, schema, file, findings, decimal_comma=decimal_comma)
-    rows = df.index.to_numpy() + 2
+    conv = _converted(table, schema, decimal_comma)
+    typed, _ = check_converted(conv, schema, file, findings, decimal_comma=decimal_comma, compact=True)
+    rows = np.arange(conv.length) + 2
     # rows whose numeric age cells were filled but unreadable are already reported
-    unreadable = np.zeros(len(df), bool)
+    unreadable = np.zeros(conv.length, bool)
     for c in ("oldest_ma", "youngest_ma"):
-        if c in df.columns:
-            unreadable |= clean_text(df[c], schema.missing_values).notna().to_numpy() & typed[c].isna().to_numpy()
+        if c in conv.fields:
+            unreadable |= ~conv.fields[c].blank & typed[c].isna().to_numpy()
     old, young, stage_bad = _stage_ages(typed, schema, rows, file, findings)
     schema.rule("age_present")
     # without the age columns every row would repeat the one missing-column problem
@@ -220,17 +252,23 @@ def check_fossils(df: pd.DataFrame, columns, schema: TableSchema, taxa: pd.DataF
         typed["taxon_id"], _ = link_taxa(typed, taxa, schema, file, findings, role="fossil_occurrences")
     if not ok:
         return None
-    return typed[FOSSIL_COLUMNS].reset_index(drop=True)
+    return pd.DataFrame({c: as_text(typed[c]) for c in FOSSIL_COLUMNS}).reset_index(drop=True)
 
 
-def check_modern(df: pd.DataFrame, columns, schema: TableSchema, taxa: pd.DataFrame | None, file: str,
+def check_modern(table, columns, schema: TableSchema, taxa: pd.DataFrame | None, file: str,
                  findings: Findings, *, decimal_comma: bool = False) -> pd.DataFrame | None:
-    """Typed modern occurrences of extant taxa (columns as in analog.study), or ``None``."""
+    """Typed modern occurrences of extant taxa (columns as in analog.study), or ``None``.
+
+    ``table`` as for :func:`check_fossils`.
+    """
     ok = check_columns(columns, schema, file, findings)
-    typed, drop = check_fields(df, schema, file, findings, decimal_comma=decimal_comma, role="modern_occurrences")
-    rows = df.index.to_numpy() + 2
+    conv = _converted(table, schema, decimal_comma)
+    typed, drop = check_converted(conv, schema, file, findings, decimal_comma=decimal_comma,
+                                  role="modern_occurrences", compact=True)
+    rows = np.arange(conv.length) + 2
     blank_id = typed["occurrenceID"].isna().to_numpy()
     if blank_id.any():
+        typed["occurrenceID"] = as_text(typed["occurrenceID"])
         typed.loc[blank_id, "occurrenceID"] = [f"{file}:row{r}" for r in rows[blank_id]]
         findings.warn(f"{file}: {int(blank_id.sum())} row(s) without occurrenceID; named '<file>:row<n>'")
     if taxa is not None and ok:
@@ -240,7 +278,7 @@ def check_modern(df: pd.DataFrame, columns, schema: TableSchema, taxa: pd.DataFr
         extant_ids = set(taxa.loc[taxa["extant"], "taxon_id"])
         gone = typed["taxon_id"].notna().to_numpy() & ~typed["taxon_id"].isin(extant_ids).to_numpy() & ~drop
         if gone.any():
-            counts = typed.loc[gone, "taxon_id"].value_counts()
+            counts = as_text(typed.loc[gone, "taxon_id"]).value_counts()
             examples = [f"{t} ({c})" for t, c in counts.head(10).items()]
             findings.drop("modern_occurrences", "taxon not marked extant", int(gone.sum()), examples)
             findings.warn(f"{file}: {int(gone.sum())} record(s) of {len(counts)} taxa not marked extant in the "
@@ -248,10 +286,10 @@ def check_modern(df: pd.DataFrame, columns, schema: TableSchema, taxa: pd.DataFr
             drop |= gone
     if not ok:
         return None
-    kept = typed.loc[~drop, MODERN_COLUMNS]
+    kept = typed[MODERN_COLUMNS] if not drop.any() else typed.loc[~drop, MODERN_COLUMNS]
     if len(typed) and not len(kept) and taxa is not None and taxa["extant"].any():
         # (with no extant taxon at all the taxa table carries the one problem)
         findings.add(file, f"no usable rows (all {len(typed)} left out; see the warnings)",
                      "modern occurrences of extant taxa of the taxa table",
                      "check that taxon_id / scientificName match the taxa table and that extant is set")
-    return kept.reset_index(drop=True)
+    return pd.DataFrame({c: as_text(kept[c]) for c in MODERN_COLUMNS}).reset_index(drop=True)

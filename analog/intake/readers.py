@@ -1,7 +1,9 @@
 """Read input tables and layers from disk. The only module of intake that touches files.
 
 Tables: CSV/TSV/TXT (UTF-8 with or without byte-order mark; the separator —
-comma, tab or semicolon — is taken from the header line) and Parquet.
+comma, tab or semicolon — is taken from the header line) and Parquet. Text files
+are streamed in blocks of ``chunk_bytes`` (only the needed columns are kept), so a
+many-gigabyte Darwin Core export is read in bounded memory.
 Layers: GeoPackage, GeoJSON, Shapefile (read with pyogrio) and GeoParquet.
 Every failure becomes a problem in :class:`~analog.intake.findings.Findings`;
 readers return ``None`` instead of raising.
@@ -29,15 +31,26 @@ _DELIMITERS = {",": "comma", "\t": "tab", ";": "semicolon"}
 _MAX_BAD_BYTES = 20
 
 
+# Bytes of a text file parsed at a time (one block becomes one chunk of rows).
+CHUNK_BYTES = 1 << 24
+_PROBE = 1 << 16
+
+
 @dataclass
 class TableFile:
-    """What was read: the table and how the file looked."""
+    """What was read: the table (or its converted chunks) and how the file looked."""
 
-    frame: pd.DataFrame
+    frame: pd.DataFrame | None    # the whole table; None when read with ``convert``
     columns: list[str]            # every column in the file, in order (names trimmed)
     delimiter: str | None = None  # text files only
     had_bom: bool = False
     notes: list[str] = field(default_factory=list)
+    parts: list = field(default_factory=list)  # what ``convert`` returned for each chunk, in file order
+    rows: int = 0                 # records read
+
+    def __post_init__(self):
+        if self.frame is not None and not self.rows:
+            self.rows = len(self.frame)
 
 
 def sha256_of(path: Path) -> str:
@@ -57,7 +70,8 @@ def _exists(path: Path, label: str, key: str, findings: Findings) -> bool:
     return False
 
 
-def read_table(path: Path, *, label: str, key: str, findings: Findings, wanted=None) -> TableFile | None:
+def read_table(path: Path, *, label: str, key: str, findings: Findings, wanted=None, categorical=(),
+               convert=None, chunk_bytes: int | None = None) -> TableFile | None:
     """Read a CSV/TSV/Parquet table as text columns (Parquet keeps its types).
 
     Parameters
@@ -71,12 +85,21 @@ def read_table(path: Path, *, label: str, key: str, findings: Findings, wanted=N
     wanted : collection of str, optional
         Only these columns are read (others are listed in ``columns`` but skipped);
         default reads all.
+    categorical : collection of str, optional
+        Text columns whose values repeat (names, identifiers of other tables): read
+        as categorical columns, each distinct value stored once.
+    convert : callable, optional
+        ``convert(frame, start, delimiter)`` is called on each chunk of rows
+        (``start`` = position of its first record) and the results are kept in
+        ``TableFile.parts`` instead of the rows; a Parquet table comes as one chunk.
+    chunk_bytes : int, optional
+        Bytes of a text file parsed at a time (default :data:`CHUNK_BYTES`).
     """
     if not _exists(path, label, key, findings):
         return None
     suffix = path.suffix.lower()
     if suffix in PARQUET_SUFFIXES:
-        return _read_parquet(path, label, findings, wanted)
+        return _read_parquet(path, label, findings, wanted, categorical, convert)
     if suffix in {".xlsx", ".xls", ".ods"}:
         findings.add(label, "a spreadsheet workbook", "a CSV, TSV or Parquet file",
                      "save the sheet as 'CSV UTF-8' (or tab-separated text) and point study.toml at it")
@@ -85,7 +108,7 @@ def read_table(path: Path, *, label: str, key: str, findings: Findings, wanted=N
         findings.add(label, f"a file ending in '{path.suffix}'", "a .csv, .tsv, .txt or .parquet file",
                      f"save the {key} table as CSV (UTF-8) or Parquet")
         return None
-    return _read_text(path, label, findings, wanted)
+    return _read_text(path, label, findings, wanted, set(categorical), convert, chunk_bytes or CHUNK_BYTES)
 
 
 _NOT_UTF8 = re.compile("[\udc80-\udcff]")
@@ -132,17 +155,50 @@ def _sniff(header: str, suffix: str) -> str:
     return best if counts[best] else ","
 
 
-def _read_text(path: Path, label: str, findings: Findings, wanted) -> TableFile | None:
-    data = path.read_bytes()
-    had_bom = data.startswith(codecs.BOM_UTF8)
-    body = data[len(codecs.BOM_UTF8):] if had_bom else data
-    if not body or body.isspace():
-        findings.add(label, "an empty file", "a header line and at least one data row",
-                     "export the table again; the file has no content")
-        return None
-    text, clean = _decode(body, label, findings)
-    end = text.find("\n")
-    header = text if end < 0 else text[:end]
+def _utf8_clean(path: Path, start: int) -> bool:
+    """Whether the file from byte ``start`` on is UTF-8 (checked block by block)."""
+    decoder = codecs.getincrementaldecoder("utf-8")("strict")
+    with open(path, "rb") as fh:
+        fh.seek(start)
+        try:
+            for block in iter(lambda: fh.read(1 << 23), b""):
+                decoder.decode(block)
+            decoder.decode(b"", final=True)
+        except UnicodeDecodeError:
+            return False
+    return True
+
+
+def _blank_from(fh, start: int) -> bool:
+    """Whether the file holds only white space from byte ``start`` on."""
+    fh.seek(start)
+    for block in iter(lambda: fh.read(1 << 20), b""):
+        if block.strip():
+            return False
+    return True
+
+
+def _read_text(path: Path, label: str, findings: Findings, wanted, categorical, convert,
+               chunk_bytes: int) -> TableFile | None:
+    with open(path, "rb") as fh:
+        had_bom = fh.read(len(codecs.BOM_UTF8)) == codecs.BOM_UTF8
+        skip = len(codecs.BOM_UTF8) if had_bom else 0
+        if _blank_from(fh, skip):
+            findings.add(label, "an empty file", "a header line and at least one data row",
+                         "export the table again; the file has no content")
+            return None
+        fh.seek(skip)
+        header_bytes = fh.readline()
+        header_only = not header_bytes.endswith(b"\n") or _blank_from(fh, skip + len(header_bytes))
+    clean = _utf8_clean(path, skip)
+    text = None
+    if clean:
+        header = header_bytes.decode("utf-8").rstrip("\n")
+    else:
+        body = path.read_bytes()[skip:]
+        text, _ = _decode(body, label, findings)
+        end = text.find("\n")
+        header = text if end < 0 else text[:end]
     delim = _sniff(header.rstrip("\r"), path.suffix.lower())
     raw_names = next(csv.reader([header.rstrip("\r")], delimiter=delim), [])
     columns = [c.strip() for c in raw_names]
@@ -150,28 +206,45 @@ def _read_text(path: Path, label: str, findings: Findings, wanted) -> TableFile 
         _one_column(columns[0], label, findings)
         return None
     keep = [r for r in raw_names if wanted is None or r.strip() in set(wanted)]
-    first_break = body.find(b"\n")
-    if first_break < 0 or not body[first_break + 1:].strip():
+    if header_only:
         # a header line alone: the caller reports the table as empty
         empty = pd.DataFrame({r: pd.Series([], dtype="str") for r in dict.fromkeys(keep)})
         empty.columns = [str(c).strip() for c in empty.columns]
-        return TableFile(empty, columns, delimiter=delim, had_bom=had_bom)
-    data = body if clean else text.encode("utf-8")
+        out = TableFile(empty, columns, delimiter=delim, had_bom=had_bom)
+        if convert is not None:
+            out.parts, out.frame = [convert(empty, 0, delim)], None
+        return out
+
+    def source():
+        if clean:
+            f = pa.OSFile(str(path))
+            f.seek(skip)
+            return f
+        return io.BytesIO(text.encode("utf-8"))
+
+    import pyarrow as pa
+
     try:
         try:
-            df = _arrow_csv(data, delim, raw_names, keep)
+            parts, n = _arrow_csv(source(), delim, raw_names, keep, categorical, convert, chunk_bytes)
         except Exception:  # noqa: BLE001
             if delim != "\t":
                 raise
             # Darwin Core archives write tab-separated text without quoting: a '"' is just a character
-            df = _arrow_csv(data, delim, raw_names, keep, quoting=False)
+            parts, n = _arrow_csv(source(), delim, raw_names, keep, categorical, convert, chunk_bytes,
+                                  quoting=False)
     except Exception as exc:  # noqa: BLE001 - any parser failure is a fault of the file
-        if not _split_faults(text if not clean else body.decode("utf-8"), delim, len(raw_names), label, findings):
+        lines = io.StringIO(text) if not clean else open(path, encoding="utf-8-sig", newline="")
+        with lines:
+            found = _split_faults(lines, delim, len(raw_names), label, findings)
+        if not found:
             findings.add(label, f"a line the table reader could not split ({str(exc).splitlines()[0][:200]})",
                          f"the same number of {_DELIMITERS[delim]}-separated cells on every line",
                          "check quoting (cells holding the separator must be in double quotes) and stray separators")
         return None
-    df.columns = [str(c).strip() for c in df.columns]
+    if convert is not None:
+        return TableFile(None, columns, delimiter=delim, had_bom=had_bom, parts=parts, rows=n)
+    df = pd.concat(parts, ignore_index=True) if len(parts) > 1 else parts[0]
     return TableFile(df, columns, delimiter=delim, had_bom=had_bom)
 
 
@@ -188,14 +261,15 @@ def _one_column(name: str, label: str, findings: Findings) -> None:
                  "save the table again as CSV (comma-separated) or TSV (tab-separated)", row=1)
 
 
-def _split_faults(text: str, delim: str, n_columns: int, label: str, findings: Findings) -> bool:
+def _split_faults(lines, delim: str, n_columns: int, label: str, findings: Findings) -> bool:
     """Find the lines the fast reader could not split and report them; False if none is found.
 
-    Only runs after the fast reader failed, so a plain Python scan of the file is fine here.
+    ``lines`` is the text as a stream. Only runs after the fast reader failed, so a plain
+    Python scan of the file is fine here.
     """
     # tab-separated text was last tried without quoting (Darwin Core archives), so scan it the same way
     quoting = csv.QUOTE_NONE if delim == "\t" else csv.QUOTE_MINIMAL
-    reader = csv.reader(io.StringIO(text), delimiter=delim, strict=True, quoting=quoting)
+    reader = csv.reader(lines, delimiter=delim, strict=True, quoting=quoting)
     what = _DELIMITERS[delim]
     rows, found = [], []
     start = 1
@@ -222,10 +296,12 @@ def _split_faults(text: str, delim: str, n_columns: int, label: str, findings: F
     return True
 
 
-def _arrow_csv(data: bytes, delim: str, raw_names: list[str], keep: list[str], *,
-               quoting: bool = True) -> pd.DataFrame:
-    """Every cell as text (no type guessing), blank cells as empty strings; multi-threaded.
+def _arrow_csv(source, delim: str, raw_names: list[str], keep: list[str], categorical, convert,
+               chunk_bytes: int, *, quoting: bool = True) -> tuple[list, int]:
+    """Stream the file block by block: every cell as text (no type guessing), blank cells as
+    empty strings, the ``categorical`` columns dictionary-coded as they are read.
 
+    Returns the chunks (or what ``convert`` made of each) and the number of records.
     Of repeated header names only the first column is read (the repeat is reported elsewhere).
     """
     import pyarrow as pa
@@ -237,40 +313,63 @@ def _arrow_csv(data: bytes, delim: str, raw_names: list[str], keep: list[str], *
     for n, r in zip(names, raw_names):
         first.setdefault(r, n)
     kept = [first[r] for r in dict.fromkeys(keep)]
-    read = pcsv.ReadOptions(column_names=names, skip_rows=1)
-    convert = pcsv.ConvertOptions(include_columns=kept, column_types={n: pa.string() for n in kept},
-                                  strings_can_be_null=False, quoted_strings_can_be_null=False)
+    types = {n: (pa.dictionary(pa.int32(), pa.string()) if raw_names[int(n[1:])].strip() in categorical
+                 else pa.string()) for n in kept}
+    read = pcsv.ReadOptions(column_names=names, skip_rows=1, block_size=max(int(chunk_bytes), 1))
+    convert_opts = pcsv.ConvertOptions(include_columns=kept, column_types=types,
+                                       strings_can_be_null=False, quoted_strings_can_be_null=False)
     parse = (pcsv.ParseOptions(delimiter=delim, newlines_in_values=True) if quoting
              else pcsv.ParseOptions(delimiter=delim, quote_char=False))
-    table = pcsv.read_csv(io.BytesIO(data), read_options=read, parse_options=parse, convert_options=convert)
-    df = table.to_pandas()
-    df.columns = [raw_names[int(n[1:])] for n in df.columns]
-    for c in df.columns:
-        if df[c].dtype == object:
-            df[c] = df[c].astype("str")
-    return df
+    parts, start = [], 0
+    with source:
+        reader = pcsv.open_csv(source, read_options=read, parse_options=parse, convert_options=convert_opts)
+        for batch in reader:
+            if batch.num_rows == 0:
+                continue
+            df = batch.to_pandas()
+            df.columns = [raw_names[int(n[1:])].strip() for n in df.columns]
+            for c in df.columns:
+                if df[c].dtype == object:
+                    df[c] = df[c].astype("str")
+            df.index = pd.RangeIndex(start, start + len(df))
+            parts.append(df if convert is None else convert(df, start, delim))
+            start += len(df)
+    if not parts:
+        empty = pd.DataFrame({raw_names[int(n[1:])].strip(): pd.Series([], dtype="str") for n in kept})
+        parts = [empty if convert is None else convert(empty, 0, delim)]
+    return parts, start
 
 
-def _read_parquet(path: Path, label: str, findings: Findings, wanted) -> TableFile | None:
+def _read_parquet(path: Path, label: str, findings: Findings, wanted, categorical=(),
+                  convert=None) -> TableFile | None:
+    import pyarrow as pa
     import pyarrow.parquet as pq
 
     try:
-        names = pq.read_schema(path).names
+        schema = pq.read_schema(path)
     except Exception as exc:  # noqa: BLE001 - any reader failure is a user-file problem
         findings.add(label, f"a file that is not readable Parquet ({type(exc).__name__}: {exc})",
                      "a Parquet file", "write the table again (for example with pandas DataFrame.to_parquet)")
         return None
-    names = [n for n in names if not n.startswith("__index_level_")]
+    names = [n for n in schema.names if not n.startswith("__index_level_")]
     cols = names if wanted is None else [n for n in names if n.strip() in set(wanted)]
+    # repeated text read dictionary-coded: each distinct name held once (Parquet usually stores it so)
+    text_types = (pa.string(), pa.large_string())
+    as_dict = [n for n in cols if n.strip() in set(categorical) and schema.field(n).type in text_types]
     try:
-        df = pd.read_parquet(path, columns=cols)
+        table = pq.read_table(path, columns=cols, read_dictionary=as_dict or None)
+        df = table.to_pandas()
+        del table
     except Exception as exc:  # noqa: BLE001
         findings.add(label, f"a Parquet file that could not be read ({type(exc).__name__}: {exc})",
                      "a Parquet file", "write the table again (for example with pandas DataFrame.to_parquet)")
         return None
     df = df.reset_index(drop=True)
     df.columns = [str(c).strip() for c in df.columns]
-    return TableFile(df, [n.strip() for n in names])
+    out = TableFile(df, [n.strip() for n in names])
+    if convert is not None:
+        out.parts, out.frame = [convert(df, 0, None)], None
+    return out
 
 
 def read_layer(path: Path, *, label: str, key: str, findings: Findings, layer: str | None = None,

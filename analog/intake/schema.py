@@ -17,6 +17,7 @@ import difflib
 import functools
 import json
 from dataclasses import dataclass
+from dataclasses import field as dc_field
 
 import numpy as np
 import pandas as pd
@@ -26,7 +27,8 @@ from ..errors import AnalogError
 from .findings import Findings, show
 
 __all__ = ["TableSchema", "load_table_schema", "check_columns", "check_fields", "clean_text",
-           "parse_number", "parse_boolean", "close_names"]
+           "parse_number", "parse_boolean", "close_names", "convert_fields", "concat_converted",
+           "check_converted", "ConvertedTable", "as_text", "fold_case", "repeated_text_fields"]
 
 # Frictionless types this validator understands.
 _TYPES = {"string", "number", "integer", "boolean", "date", "geojson"}
@@ -156,6 +158,8 @@ def check_columns(columns, schema: TableSchema, file: str, findings: Findings) -
 
 def clean_text(series: pd.Series, missing_values) -> pd.Series:
     """Text values trimmed, with the schema's missing-value spellings as NA (string dtype)."""
+    if isinstance(series.dtype, pd.CategoricalDtype):
+        return as_text(_clean_categorical(series, missing_values))
     if series.dtype.kind in "biuf":
         return _numbers_as_text(series)
     s = series.astype("str").str.strip()
@@ -168,10 +172,62 @@ def _numbers_as_text(series: pd.Series) -> pd.Series:
     if series.dtype.kind == "f":
         vals = series.to_numpy()
         finite = np.isfinite(vals)
-        if finite.any() and np.all(np.mod(vals[finite], 1) == 0):
-            series = series.astype("Int64")
+        if (finite.any() and np.all(np.mod(vals[finite], 1) == 0)
+                and np.all(np.abs(vals[finite]) < 2.0 ** 63)):
+            out = series.where(finite).astype("Int64").astype("str")
+            infinite = np.isinf(vals)
+            if infinite.any():  # +-inf keep their float spelling
+                out[infinite] = series[infinite].astype("str")
+            return out.mask(series.isna())
     out = series.astype("str")
     return out.mask(series.isna())
+
+
+def as_text(series: pd.Series) -> pd.Series:
+    """A categorical text column as a plain ``str`` column (other columns unchanged)."""
+    if not isinstance(series.dtype, pd.CategoricalDtype):
+        return series
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    codes = np.asarray(series.cat.codes.to_numpy(), dtype=np.int64)
+    cats = pa.array(series.cat.categories.astype("str").to_numpy(dtype=object), type=pa.large_string())
+    taken = pc.take(cats, pa.array(codes, mask=codes < 0)) if len(cats) else pa.nulls(len(codes), pa.large_string())
+    out = pa.chunked_array([taken]).to_pandas().astype("str")
+    out.index = series.index
+    return out
+
+
+def _recode(codes: np.ndarray, uniques: pd.Series, index) -> pd.Series:
+    """Categorical column from codes into ``uniques`` (which may hold NA and repeats)."""
+    ucodes, cats = pd.factorize(uniques.reset_index(drop=True), use_na_sentinel=True)
+    lut = np.append(ucodes.astype(np.int64), -1)   # code -1 (NA) -> last entry -> -1
+    new = lut[np.asarray(codes, dtype=np.int64)]
+    cats = pd.Index(cats, dtype="str")
+    return pd.Series(pd.Categorical.from_codes(new, categories=cats), index=index)
+
+
+def _factor(series: pd.Series) -> tuple[np.ndarray, pd.Series]:
+    """Codes (-1 = NA) and distinct values (as text) of a text column."""
+    if isinstance(series.dtype, pd.CategoricalDtype):
+        return series.cat.codes.to_numpy(), pd.Series(series.cat.categories.astype("str"))
+    codes, uniques = pd.factorize(series, use_na_sentinel=True)
+    return codes, pd.Series(uniques).astype("str")
+
+
+def _clean_categorical(series: pd.Series, missing_values) -> pd.Series:
+    """Trim and blank the distinct values only, then map back: a categorical column."""
+    codes, uniques = _factor(series)
+    s = uniques.str.strip()
+    return _recode(codes, s.mask(s.isin(list(missing_values))), series.index)
+
+
+def fold_case(values: pd.Series) -> pd.Series:
+    """Case-folded text; for a categorical column the distinct values only."""
+    if isinstance(values.dtype, pd.CategoricalDtype):
+        codes, uniques = _factor(values)
+        return _recode(codes, uniques.str.casefold(), values.index)
+    return values.str.casefold()
 
 
 def parse_number(text: pd.Series, *, decimal_comma: bool = False) -> tuple[pd.Series, np.ndarray]:
@@ -224,6 +280,199 @@ def _first_rows(values: pd.Series, rows: np.ndarray) -> pd.Series:
     return first
 
 
+# --- two passes: convert (chunk by chunk), then check (the whole table) -------------------
+#
+# ``convert_fields`` types one block of raw rows (a whole table, or one chunk of a large text
+# file): text is trimmed, blanks found, numbers parsed. It keeps what the messages need (the
+# cells as written for the first rows of each fault) but no raw text. ``concat_converted``
+# joins the blocks; ``check_converted`` then applies every check to the whole table, so row
+# numbers, the "first 20 rows" lists and duplicate checks are global.
+
+_SHOWN = 50  # cells kept per block, column and fault for the messages (more than are listed)
+
+
+@dataclass
+class ConvertedColumn:
+    """One schema field after typing: values, blank and unreadable cells, texts for messages."""
+
+    values: pd.Series             # typed; repeated text as a categorical column
+    blank: np.ndarray             # empty cells (or a missing-value spelling)
+    bad: np.ndarray               # filled, but not of the field's type (already NA in values)
+    text: pd.Series | None = None  # text before case folding, where it differs from values
+    shown: dict = dc_field(default_factory=dict)  # fault -> cells as written, indexed by position
+    comma: bool = False           # an unreadable number looks like a decimal comma
+
+    @property
+    def as_written(self) -> pd.Series:
+        return self.values if self.text is None else self.text
+
+
+@dataclass
+class ConvertedTable:
+    """The typed schema fields of a table (see :func:`convert_fields`)."""
+
+    fields: dict
+    length: int
+    index: pd.Index
+
+
+def _unique_field(schema: TableSchema, f: dict) -> bool:
+    return bool(f.get("constraints", {}).get("unique")) or schema.descriptor.get("primaryKey") == [f["name"]]
+
+
+def repeated_text_fields(schema: TableSchema) -> list[str]:
+    """Text fields whose values may repeat (not unique): worth reading as categorical columns."""
+    return [f["name"] for f in schema.fields if f.get("type", "string") == "string" and not _unique_field(schema, f)]
+
+
+def _range_faults(vals: np.ndarray, ok: np.ndarray, cons: dict) -> dict:
+    """Cells below the minimum, then (of the rest) above the maximum."""
+    out = {}
+    for bound, op in (("minimum", np.less), ("maximum", np.greater)):
+        if bound in cons:
+            hit = ok & op(vals, cons[bound], where=ok, out=np.zeros(len(vals), bool))
+            out[bound] = hit
+            ok = ok & ~hit
+    return out
+
+
+def _keep(texts: pd.Series, mask: np.ndarray) -> pd.Series:
+    """The first cells of a fault, as written, indexed by position."""
+    pos = np.flatnonzero(mask)[:_SHOWN]
+    return pd.Series(texts.iloc[pos].to_numpy(dtype=object), index=texts.index[pos], dtype=object)
+
+
+def _number_text(raw: pd.Series, mask: np.ndarray) -> pd.Series:
+    """Numeric cells shown as text, the first of ``mask``, spelled as :func:`_numbers_as_text` would."""
+    pos = np.flatnonzero(mask)[:_SHOWN]
+    sub = raw.iloc[pos]
+    if raw.dtype.kind == "f" and len(pos):
+        vals = raw.to_numpy()
+        finite = np.isfinite(vals)
+        whole = (finite.any() and np.all(np.mod(vals[finite], 1) == 0)
+                 and np.all(np.abs(vals[finite]) < 2.0 ** 63))
+        if whole:
+            fin = np.isfinite(sub.to_numpy())
+            text = sub.astype("str").to_numpy(dtype=object)
+            text[fin] = sub[fin].astype("Int64").astype("str").to_numpy(dtype=object)
+            return pd.Series(text, index=sub.index, dtype=object)
+    return pd.Series(sub.astype("str").to_numpy(dtype=object), index=sub.index, dtype=object)
+
+
+def convert_fields(df: pd.DataFrame, schema: TableSchema, *, decimal_comma: bool = False,
+                   start: int = 0) -> ConvertedTable:
+    """Type the schema fields present in a block of raw rows (first pass).
+
+    Parameters
+    ----------
+    df : DataFrame
+        Raw rows: text columns (plain or categorical), or typed columns from Parquet.
+    start : int, default=0
+        Position of the block's first row in the file (0 = first record).
+
+    Notes
+    -----
+    Numeric columns are taken as numbers (no text round trip); text is trimmed and
+    compared with the missing-value spellings once per distinct value for repeated
+    text. A number column read as numbers must come in one block (its spelling in
+    messages depends on the whole column).
+    """
+    n = len(df)
+    index = pd.RangeIndex(start, start + n)
+    missing = schema.missing_values
+    out = {}
+    for f in schema.fields:
+        name, kind = f["name"], f.get("type", "string")
+        if kind == "geojson" or name not in df.columns:
+            continue
+        raw = df[name]
+        if not isinstance(raw, pd.Series):  # repeated column name: the first one counts
+            raw = raw.iloc[:, 0]
+        raw = raw.set_axis(index)
+        cons = f.get("constraints", {})
+        numeric = raw.dtype.kind in "biuf" and not isinstance(raw.dtype, pd.CategoricalDtype)
+        if kind == "string":
+            if numeric:
+                codes, uniques = pd.factorize(raw, use_na_sentinel=True)
+                text = _recode(codes, _numbers_as_text(pd.Series(uniques)), index)
+            elif _unique_field(schema, f) and not isinstance(raw.dtype, pd.CategoricalDtype):
+                text = clean_text(raw, missing)  # distinct values by design: no point in coding them
+            else:
+                text = _clean_categorical(raw, missing)
+            col = ConvertedColumn(text, text.isna().to_numpy(), np.zeros(n, bool))
+            if f.get("caseInsensitive"):
+                col.values, col.text = fold_case(text), text
+        elif kind in ("number", "integer"):
+            if numeric:
+                values = raw.astype("float64")
+                blank = values.isna().to_numpy()
+                text = None
+            else:
+                text = clean_text(raw, missing)
+                blank = text.isna().to_numpy()
+            values, bad = parse_number(values if numeric else text, decimal_comma=decimal_comma)
+            if kind == "integer":
+                frac = values.notna().to_numpy() & (np.mod(values.fillna(0).to_numpy(), 1) != 0)
+                bad = bad | frac
+                values = values.mask(frac)
+            col = ConvertedColumn(values, blank, bad)
+            vals = values.to_numpy(dtype="float64", na_value=np.nan)
+            faults = {"type": bad, **_range_faults(vals, ~np.isnan(vals), cons)}
+            for fault, mask in faults.items():
+                if mask.any():
+                    col.shown[fault] = _number_text(raw, mask) if numeric else _keep(text, mask)
+            if bad.any() and not numeric and not decimal_comma:
+                col.comma = bool(text[bad].str.contains(r"^[+-]?\d*,\d+$", regex=True).any())
+            if kind == "integer":
+                col.values = values.astype("Int64")
+        elif kind == "boolean":
+            text = clean_text(raw, missing)
+            values, bad = parse_boolean(raw if raw.dtype.kind == "b" else text,
+                                        f.get("trueValues", ["true"]), f.get("falseValues", ["false"]))
+            col = ConvertedColumn(values.set_axis(index), text.isna().to_numpy(), bad)
+            if bad.any():
+                col.shown["type"] = _keep(text, bad)
+        elif kind == "date":
+            text = clean_text(raw, missing)
+            blank = text.isna().to_numpy()
+            values = pd.to_datetime(text, format="%Y-%m-%d", errors="coerce")
+            bad = ~blank & values.isna().to_numpy()
+            col = ConvertedColumn(values, blank, bad)
+            if bad.any():
+                col.shown["type"] = _keep(text, bad)
+        out[name] = col
+    return ConvertedTable(out, n, index)
+
+
+def _concat_series(parts: list[pd.Series]) -> pd.Series:
+    if len(parts) == 1:
+        return parts[0]
+    if all(isinstance(p.dtype, pd.CategoricalDtype) for p in parts):
+        from pandas.api.types import union_categoricals
+
+        return pd.Series(union_categoricals([p.array for p in parts]), index=pd.RangeIndex(sum(map(len, parts))))
+    return pd.concat(parts, ignore_index=True)
+
+
+def concat_converted(parts: list[ConvertedTable]) -> ConvertedTable:
+    """Join blocks of one table (in file order) typed by :func:`convert_fields`."""
+    if len(parts) == 1:
+        return parts[0]
+    n = sum(p.length for p in parts)
+    fields = {}
+    for name in parts[0].fields:
+        cols = [p.fields[name] for p in parts]
+        col = ConvertedColumn(_concat_series([c.values for c in cols]),
+                              np.concatenate([c.blank for c in cols]), np.concatenate([c.bad for c in cols]),
+                              comma=any(c.comma for c in cols))
+        if any(c.text is not None for c in cols):
+            col.text = _concat_series([c.as_written for c in cols])
+        for fault in dict.fromkeys(k for c in cols for k in c.shown):
+            col.shown[fault] = pd.concat([c.shown[fault] for c in cols if fault in c.shown])
+        fields[name] = col
+    return ConvertedTable(fields, n, pd.RangeIndex(n))
+
+
 def check_fields(df: pd.DataFrame, schema: TableSchema, file: str, findings: Findings, *,
                  row_offset: int = 2, decimal_comma: bool = False, role: str | None = None):
     """Check and type every schema field present in ``df``.
@@ -247,50 +496,70 @@ def check_fields(df: pd.DataFrame, schema: TableSchema, file: str, findings: Fin
     drop : ndarray of bool
         Rows to leave out because a check with severity ``"drop"`` failed.
     """
-    rows = df.index.to_numpy() + row_offset
+    conv = convert_fields(df, schema, decimal_comma=decimal_comma)
+    conv.index = df.index
+    return check_converted(conv, schema, file, findings, row_offset=row_offset, decimal_comma=decimal_comma,
+                           role=role)
+
+
+def _no_repeats(values: pd.Series, ok: np.ndarray) -> bool:
+    """True when the filled text values are strictly increasing or decreasing (so all distinct).
+
+    A cheap test that spares hashing millions of identifiers, which exports often sort.
+    """
+    arr = values.array
+    if not hasattr(arr, "__arrow_array__") or isinstance(values.dtype, pd.CategoricalDtype):
+        return False
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    a = arr.__arrow_array__()
+    if not isinstance(a, pa.ChunkedArray):
+        a = pa.chunked_array([a])
+    if not ok.all():
+        a = pc.filter(a, pa.array(ok))
+    m = len(a)
+    if m < 2:
+        return True
+    head, tail = a.slice(0, m - 1), a.slice(1)
+    return bool(pc.all(pc.greater(tail, head)).as_py()) or bool(pc.all(pc.less(tail, head)).as_py())
+
+
+def check_converted(conv: ConvertedTable, schema: TableSchema, file: str, findings: Findings, *,
+                    row_offset: int = 2, decimal_comma: bool = False, role: str | None = None,
+                    compact: bool = False):
+    """Check a table typed by :func:`convert_fields` (second pass); returns ``(typed, drop)``.
+
+    ``compact=True`` leaves repeated text as categorical columns (convert with
+    :func:`as_text`); otherwise text columns are ``str``. See :func:`check_fields`.
+    """
+    n = conv.length
+    pos = pd.RangeIndex(n)
+    rows = np.arange(n) + row_offset
     typed = {}
-    drop = np.zeros(len(df), bool)
-    missing = schema.missing_values
+    drop = np.zeros(n, bool)
     for f in schema.fields:
         name, kind = f["name"], f.get("type", "string")
         if kind == "geojson":
             continue
-        if name not in df.columns:
-            typed[name] = _empty_column(kind, df.index)
+        if name not in conv.fields:
+            typed[name] = _empty_column(kind, pos)
             if f.get("warnIfAbsent"):
                 findings.warn(f"{file}: no column '{name}'; treated as blank")
             continue
-        raw = df[name]
-        text = clean_text(raw, missing)
-        blank = text.isna().to_numpy()
+        col = conv.fields[name]
+        values = col.values.set_axis(pos)
+        text = col.as_written.set_axis(pos)
+        blank, bad = col.blank, col.bad
         cons = f.get("constraints", {})
-        # type
-        if kind == "string":
-            values = text
-            if f.get("caseInsensitive"):
-                values = values.str.casefold()
-            bad = np.zeros(len(df), bool)
-        elif kind in ("number", "integer"):
-            values, bad = parse_number(raw if raw.dtype.kind in "biuf" else text, decimal_comma=decimal_comma)
-            if kind == "integer":
-                frac = values.notna().to_numpy() & (np.mod(values.fillna(0).to_numpy(), 1) != 0)
-                bad = bad | frac
-                values = values.mask(frac).astype("Int64")
-        elif kind == "boolean":
-            values, bad = parse_boolean(raw if raw.dtype.kind == "b" else text,
-                                        f.get("trueValues", ["true"]), f.get("falseValues", ["false"]))
-        elif kind == "date":
-            values = pd.to_datetime(text, format="%Y-%m-%d", errors="coerce")
-            bad = ~blank & values.isna().to_numpy()
         if bad.any():
             expected = _type_words(f, decimal_comma)
             fix = f"correct these cells in column '{name}' (or leave them blank if allowed)"
-            if kind in ("number", "integer") and not decimal_comma and text[bad].str.contains(
-                    r"^[+-]?\d*,\d+$", regex=True).any():
+            if kind in ("number", "integer") and col.comma:
                 fix += "; use a dot as the decimal mark (or separate columns with semicolons)"
+            shown = _shown(col, "type", bad)
             _report(findings, schema, name, "type", file, rows[bad],
-                    [f"{show(v)} (not {_a(kind)})" for v in text[bad].head(50)], expected, fix)
-            values = values.mask(bad)
+                    [f"{show(v)} (not {_a(kind)})" for v in shown], expected, fix)
         ok = values.notna().to_numpy()
         # constraints
         if cons.get("required"):
@@ -305,11 +574,9 @@ def check_fields(df: pd.DataFrame, schema: TableSchema, file: str, findings: Fin
                     _report(findings, schema, name, "required", file, rows[blank], "a blank cell",
                             f"a value in every row of '{name}'",
                             f"fill column '{name}' in these rows or delete the rows")
-        for bound, op in (("minimum", np.less), ("maximum", np.greater)):
-            if bound in cons and kind in ("number", "integer"):
-                limit = cons[bound]
-                vals = values.to_numpy(dtype="float64", na_value=np.nan)
-                out = ok & op(vals, limit, where=ok, out=np.zeros(len(vals), bool))
+        if kind in ("number", "integer") and ("minimum" in cons or "maximum" in cons):
+            vals = values.to_numpy(dtype="float64", na_value=np.nan)
+            for bound, out in _range_faults(vals, ok, cons).items():
                 if out.any():
                     lo, hi = cons.get("minimum"), cons.get("maximum")
                     rng = (f"between {lo:g} and {hi:g}" if lo is not None and hi is not None
@@ -318,7 +585,7 @@ def check_fields(df: pd.DataFrame, schema: TableSchema, file: str, findings: Fin
                     if name in ("decimalLatitude", "decimalLongitude"):
                         fix += "; check that latitude and longitude are not swapped and are decimal degrees"
                     _report(findings, schema, name, bound, file, rows[out],
-                            [show(v) for v in text[out].head(50)], f"a number {rng}", fix)
+                            [show(v) for v in _shown(col, bound, out)], f"a number {rng}", fix)
                     values = values.mask(out)
                     ok = ok & ~out
         if "enum" in cons:
@@ -340,7 +607,7 @@ def check_fields(df: pd.DataFrame, schema: TableSchema, file: str, findings: Fin
                 values = values.mask(out)
                 ok = ok & ~out
         unique = cons.get("unique") or schema.descriptor.get("primaryKey") == [name]
-        if unique and ok.any():
+        if unique and ok.any() and not _no_repeats(values, ok):
             dup = ok & values.duplicated(keep="first").to_numpy()
             if dup.any():
                 first = _first_rows(values[ok], rows[ok]).reindex(values.index).to_numpy()
@@ -355,9 +622,19 @@ def check_fields(df: pd.DataFrame, schema: TableSchema, file: str, findings: Fin
                              for v, r in zip(text[dup].head(50), first[dup][:50])]
                     _report(findings, schema, name, "unique", file, rows[dup], found,
                             f"each {name} once", f"give each row its own {name} or merge the duplicates")
-        typed[name] = values
-    out = pd.DataFrame(typed, index=df.index)
+        typed[name] = values if compact else as_text(values)
+    out = pd.DataFrame(typed, index=pos, copy=False)
+    out.index = conv.index
     return out, drop
+
+
+def _shown(col: ConvertedColumn, fault: str, mask: np.ndarray) -> list:
+    """Cells as written for the first rows of a fault (kept by :func:`convert_fields`)."""
+    pos = np.flatnonzero(mask)[:_SHOWN]
+    kept = col.shown.get(fault)
+    if kept is None:
+        return [None] * len(pos)
+    return list(kept.reindex(pos).to_numpy(dtype=object))
 
 
 def _report(findings, schema, name, rule, file, rows, found, expected, fix):
