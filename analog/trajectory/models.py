@@ -269,73 +269,237 @@ def _fit_rise_fall(batch: SeriesBatch):
     return ll, params
 
 
-def _asym_eval(t, y, m, n_obs, yy, c):
+_SEARCH_BLOCK = 1 << 16   # series x width searched together (bounds the peak search's working arrays)
+_SUM_BLOCK = 1 << 18      # candidates x series x width summed together
+
+
+def _pairwise_sum(a: np.ndarray) -> np.ndarray:
+    """Sum over the first axis, adding in the order ``ndarray.sum`` uses along a row.
+
+    ``a`` has positions along axis 0 and many independent rows along the other axes,
+    so every step is one vectorized addition over all rows. numpy adds the ``n``
+    values of a contiguous row by pairwise summation: fewer than 8 values one after
+    another; up to 128 values in 8 interleaved partial sums combined as
+    ``((r0 + r1) + (r2 + r3)) + ((r4 + r5) + (r6 + r7))`` and then the remainder one
+    by one; longer rows split in two halves (the first a multiple of 8 long), each
+    summed the same way; the reduction starts from 0.0. The result therefore equals
+    ``np.moveaxis(a, 0, -1).sum(axis=-1)`` bit for bit, but runs far faster when the
+    rows are short. :func:`_pairwise_matches_numpy` checks that once per process and
+    this function falls back to numpy's own sum if the check fails.
+    """
+    if not _pairwise_matches_numpy():
+        return np.ascontiguousarray(np.moveaxis(a, 0, -1)).sum(axis=-1)
+    return 0.0 + _pairwise(a)
+
+
+def _pairwise(a):
+    n = a.shape[0]
+    if n < 8:
+        res = np.zeros(a.shape[1:])
+        for i in range(n):
+            res += a[i]
+        return res
+    if n <= 128:
+        r = a[:8].copy()
+        stop = n - n % 8
+        for i in range(8, stop, 8):
+            r += a[i:i + 8]
+        res = ((r[0] + r[1]) + (r[2] + r[3])) + ((r[4] + r[5]) + (r[6] + r[7]))
+        for i in range(stop, n):
+            res += a[i]
+        return res
+    half = n // 2
+    half -= half % 8
+    return _pairwise(a[:half]) + _pairwise(a[half:])
+
+
+_PAIRWISE_OK: list[bool] = []
+
+
+def _pairwise_matches_numpy() -> bool:
+    """Whether :func:`_pairwise` reproduces ``ndarray.sum`` along rows of every width up to 300."""
+    if not _PAIRWISE_OK:
+        rng = np.random.default_rng(0)
+        ok = True
+        for n in range(1, 301):
+            rows = rng.standard_normal((n, 4)) * 10.0 ** rng.integers(-8, 9, (n, 4))
+            rows[:, 0] = -0.0
+            ok &= np.array_equal(0.0 + _pairwise(rows), np.ascontiguousarray(rows.T).sum(axis=1))
+        _PAIRWISE_OK.append(bool(ok))
+    return _PAIRWISE_OK[0]
+
+
+def _asym_sums(tn, y, c):
+    """Sums that the fit at peak times ``c`` needs, for every series and candidate at once.
+
+    The arrays are transposed: positions along axis 0, series along the last axis.
+    ``tn`` (width, series) holds the observation times with NaN at unused positions,
+    ``y`` the values with 0 there; ``c`` is (candidates, series). Returns ``(sl, ql,
+    yl, sr, qr, yr)``, each (candidates, series): with ``d = (t − c)²``, the sums of
+    ``d``, ``d²`` and ``d y`` over the observations left of the peak (``t < c``), and
+    the same sums over the whole series minus the left part.
+
+    Each element equals the one ``(t − c)² · mask · [t < c]`` gives (``fmin(t − c, 0)²``
+    is ``(t − c)²`` left of the peak and 0 elsewhere; ``fmax`` turns the NaN of unused
+    positions into 0), and every sum is added in the order ``ndarray.sum(axis=1)`` uses
+    for an untransposed row of the batch's width (see :func:`_pairwise_sum`).
+    """
+    w = np.empty((6, tn.shape[0]) + c.shape)
+    dl, d2 = w[0], w[3]
+    np.subtract(tn[:, None, :], c[None], out=d2)
+    np.fmin(d2, 0.0, out=dl)
+    np.multiply(dl, dl, out=dl)
+    np.multiply(d2, d2, out=d2)
+    np.fmax(d2, 0.0, out=d2)
+    np.multiply(dl, dl, out=w[1])
+    np.multiply(dl, y[:, None, :], out=w[2])
+    np.multiply(d2, d2, out=w[4])
+    np.multiply(d2, y[:, None, :], out=w[5])
+    sl, ql, yl, s2, q2, y2 = _pairwise_sum(np.moveaxis(w, 0, 1))
+    return sl, ql, yl, s2 - sl, q2 - ql, y2 - yl
+
+
+def _asym_rss(tn, y, third, n_obs, yy, ysum, flat, c):
+    """Least RSS of the peaked curve at fixed peak times ``c`` (candidates, series).
+
+    The same numbers as :func:`_asym_eval` (up to the sign of a zero), with the terms
+    that vanish in the one-sided and flat subsets left out: ``flat`` is the RSS of the
+    flat fit, which does not depend on ``c``; ``third`` holds each series' third
+    smallest and third largest conditioned time, so that "at least ``_MIN_SIDE``
+    observations left of (right of) ``c``" is ``c > third[0]`` (``c <= third[1]``).
+    """
+    sl, ql, yl, sr, qr, yr = _asym_sums(tn, y, c)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        # a side bends only with enough points on it; otherwise one point would be fitted exactly
+        gl = np.where((ql > 0) & (c > third[0]), 1.0 / ql, 0.0)
+        gr = np.where((qr > 0) & (c <= third[1]), 1.0 / qr, 0.0)
+        pl, pr = sl * sl * gl, sr * sr * gr
+        ql_, qr_ = sl * yl * gl, sr * yr * gr
+        best = np.full(c.shape, np.inf)
+        # both sides bent
+        den = n_obs - pl - pr
+        a0 = (ysum - ql_ - qr_) / np.where(den > 1e-12, den, np.nan)
+        bl, br = (sl * a0 - yl) * gl, (sr * a0 - yr) * gr
+        rss = yy - a0 * ysum + bl * yl + br * yr
+        best = np.where((bl >= 0) & (br >= 0) & np.isfinite(rss) & (rss < best - 1e-12), rss, best)
+        # rise only
+        den = n_obs - pl
+        a0 = (ysum - ql_) / np.where(den > 1e-12, den, np.nan)
+        bl = (sl * a0 - yl) * gl
+        rss = yy - a0 * ysum + bl * yl
+        best = np.where((bl >= 0) & np.isfinite(rss) & (rss < best - 1e-12), rss, best)
+        # fall only
+        den = n_obs - pr
+        a0 = (ysum - qr_) / np.where(den > 1e-12, den, np.nan)
+        br = (sr * a0 - yr) * gr
+        rss = yy - a0 * ysum + br * yr
+        best = np.where((br >= 0) & np.isfinite(rss) & (rss < best - 1e-12), rss, best)
+        # flat
+        best = np.where(np.isfinite(flat) & (flat < best - 1e-12), flat, best)
+    return np.maximum(best, 0.0)
+
+
+def _asym_eval(tn, y, third, n_obs, yy, ysum, c):
     """Least-squares fit of ``a − b_rise (t − c)² [t < c] − b_fall (t − c)² [t >= c]`` at fixed ``c``.
 
-    The normal equations have an arrowhead form (the two curvature columns never
-    overlap), so each column subset is solved in closed form. A side with fewer than
-    ``_MIN_SIDE`` observations stays flat (curvature 0). Returns the feasible
-    (non-negative curvature) solution of least RSS: ``(rss, a, b_rise, b_fall)``.
+    Arrays as in :func:`_asym_rss`. The normal equations have an arrowhead form (the
+    two curvature columns never overlap), so each column subset is solved in closed
+    form; the four subsets (both sides bent, rise only, fall only, flat) are tried in
+    that order and the feasible (non-negative curvature) solution of least RSS is kept.
+    A side with fewer than ``_MIN_SIDE`` observations stays flat (curvature 0).
+    Returns ``(rss, a, b_rise, b_fall)``, each (candidates, series).
     """
-    d2 = (t - c[:, None]) ** 2 * m
-    is_left = t < c[:, None]
-    n_left = (m * is_left).sum(1)
-    dl = d2 * is_left
-    sl, ql, yl = dl.sum(1), (dl * dl).sum(1), (dl * y).sum(1)
-    sr, qr, yr = d2.sum(1) - sl, (d2 * d2).sum(1) - ql, (d2 * y).sum(1) - yl
-    ysum = y.sum(1)
-    best = (np.full(len(c), np.inf), ysum / n_obs, np.zeros(len(c)), np.zeros(len(c)))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        # a side bends only with enough points on it; otherwise one point would be fitted exactly
-        gl = np.where((ql > 0) & (n_left >= _MIN_SIDE), 1.0 / ql, 0.0)
-        gr = np.where((qr > 0) & (n_obs - n_left >= _MIN_SIDE), 1.0 / qr, 0.0)
-        for use_l, use_r in ((True, True), (True, False), (False, True), (False, False)):
-            fl, fr = (gl if use_l else 0.0), (gr if use_r else 0.0)
-            den = n_obs - sl * sl * fl - sr * sr * fr
-            a0 = (ysum - sl * yl * fl - sr * yr * fr) / np.where(den > 1e-12, den, np.nan)
-            if not (use_l or use_r):
-                a0 = ysum / n_obs
-            bl = (sl * a0 - yl) * fl
-            br = (sr * a0 - yr) * fr
-            rss = yy - a0 * ysum + bl * yl + br * yr
-            take = (bl >= 0) & (br >= 0) & np.isfinite(rss) & (rss < best[0] - 1e-12)
-            best = tuple(np.where(take, new, old) for new, old in zip((rss, a0, bl, br), best))
-    return (np.maximum(best[0], 0.0),) + best[1:]
+    sl, ql, yl, sr, qr, yr = _asym_sums(tn, y, c)
+    zero = np.zeros(c.shape)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        gl = np.where((ql > 0) & (c > third[0]), 1.0 / ql, 0.0)
+        gr = np.where((qr > 0) & (c <= third[1]), 1.0 / qr, 0.0)
+        fl = np.stack([gl, gl, zero, zero])            # the four subsets, in the order they are tried
+        fr = np.stack([gr, zero, gr, zero])
+        den = n_obs - sl * sl * fl - sr * sr * fr
+        a0 = (ysum - sl * yl * fl - sr * yr * fr) / np.where(den > 1e-12, den, np.nan)
+        a0[3] = ysum / n_obs
+        bl = (sl * a0 - yl) * fl
+        br = (sr * a0 - yr) * fr
+        rss = yy - a0 * ysum + bl * yl + br * yr
+        ok = (bl >= 0) & (br >= 0) & np.isfinite(rss)
+        best = np.full(c.shape, np.inf)
+        pick = np.full(c.shape, 4)
+        for k in range(4):
+            take = ok[k] & (rss[k] < best - 1e-12)
+            best = np.where(take, rss[k], best)
+            pick = np.where(take, k, pick)
+    # no feasible subset: the flat fit's level with zero curvatures
+    a0 = np.concatenate([a0, np.broadcast_to(ysum / n_obs, c.shape)[None]])
+    bl = np.concatenate([bl, zero[None]])
+    br = np.concatenate([br, zero[None]])
+    return (np.maximum(best, 0.0),) + tuple(np.take_along_axis(v, pick[None], axis=0)[0] for v in (a0, bl, br))
+
+
+def _asym_search(tn, y, third, n_obs, yy, ysum, lo, hi):
+    """Peak time of least RSS: a grid over [lo, hi], then golden-section steps near its best point."""
+    width, n = tn.shape
+    cols = np.arange(n)
+    with np.errstate(invalid="ignore", over="ignore"):
+        flat = yy - ysum / n_obs * ysum
+
+    def f(c):
+        return _asym_rss(tn, y, third, n_obs, yy, ysum, flat, c)
+
+    grid = (lo[:, None] + (hi - lo)[:, None] * np.linspace(0.0, 1.0, _PEAK_GRID)[None, :]).T
+    per = max(1, _SUM_BLOCK // max(6 * n * width, 1))        # grid points summed at once
+    rss_grid = np.concatenate([f(grid[g:g + per]) for g in range(0, _PEAK_GRID, per)], axis=0)
+    g_best = np.argmin(rss_grid, axis=0)
+    c_grid, r_grid = grid[g_best, cols], rss_grid[g_best, cols]
+    step = (hi - lo) / (_PEAK_GRID - 1)
+    a, b = np.maximum(c_grid - step, lo), np.minimum(c_grid + step, hi)
+    # golden-section search inside the bracket around the best grid point
+    x1, x2 = b - _GOLD * (b - a), a + _GOLD * (b - a)
+    f1, f2 = f(np.stack([x1, x2]))
+    for _ in range(_PEAK_STEPS):
+        left = f1 < f2
+        a, b = np.where(left, a, x1), np.where(left, x2, b)
+        x1, x2 = np.where(left, b - _GOLD * (b - a), x2), np.where(left, x1, a + _GOLD * (b - a))
+        fx = f(np.where(left, x1, x2)[None])[0]
+        f1, f2 = np.where(left, fx, f2), np.where(left, f1, fx)
+    c_search, r_search = np.where(f1 < f2, x1, x2), np.minimum(f1, f2)
+    c = np.where(r_search < r_grid, c_search, c_grid)
+    rss, a0, bl, br = _asym_eval(tn, y, third, n_obs, yy, ysum, c[None])
+    return c, rss[0], a0[0], bl[0], br[0]
 
 
 def _fit_rise_fall_asym(batch: SeriesBatch):
-    """Peaked curve with different rise and fall curvatures; peak time inside the window."""
+    """Peaked curve with different rise and fall curvatures; peak time inside the window.
+
+    Notes
+    -----
+    The peak time is searched for blocks of series at a time, held transposed
+    (positions × series) so that every step is a long vectorized operation; each
+    series' numbers are those of fitting it alone, and equal those of the plain
+    whole-row formulation (the sums are added in numpy's order, see
+    :func:`_pairwise_sum`).
+    """
     m = _cond_mask(batch)
     ne = (batch.n - 1).astype(float)
     t = np.where(m, batch.t, 0.0)
     y = np.where(m, batch.y, 0.0)
     yy = (y ** 2).sum(1)
-    m = m.astype(float)
+    ysum = y.sum(1)
     n_obs = np.maximum(ne, 1.0)
     _, _, lo, hi = _center_scale(batch)
-    rows = np.arange(len(batch))
-
-    def f(c):
-        return _asym_eval(t, y, m, n_obs, yy, c)[0]
-
-    grid = lo[:, None] + (hi - lo)[:, None] * np.linspace(0.0, 1.0, _PEAK_GRID)[None, :]
-    rss_grid = np.column_stack([f(grid[:, g]) for g in range(_PEAK_GRID)])
-    g_best = np.argmin(rss_grid, axis=1)
-    c_grid, r_grid = grid[rows, g_best], rss_grid[rows, g_best]
-    step = (hi - lo) / (_PEAK_GRID - 1)
-    a, b = np.maximum(c_grid - step, lo), np.minimum(c_grid + step, hi)
-    # golden-section search inside the bracket around the best grid point
-    x1, x2 = b - _GOLD * (b - a), a + _GOLD * (b - a)
-    f1, f2 = f(x1), f(x2)
-    for _ in range(_PEAK_STEPS):
-        left = f1 < f2
-        a, b = np.where(left, a, x1), np.where(left, x2, b)
-        x1, x2 = np.where(left, b - _GOLD * (b - a), x2), np.where(left, x1, a + _GOLD * (b - a))
-        fx = f(np.where(left, x1, x2))
-        f1, f2 = np.where(left, fx, f2), np.where(left, f1, fx)
-    c_search, r_search = np.where(f1 < f2, x1, x2), np.minimum(f1, f2)
-    c = np.where(r_search < r_grid, c_search, c_grid)
-    rss, a0, bl, br = _asym_eval(t, y, m, n_obs, yy, c)
+    n, width = t.shape
+    # third smallest and third largest conditioned time (+inf / -inf when there are fewer)
+    pad = np.full((n, _MIN_SIDE), np.inf)
+    third = np.stack([np.sort(np.hstack([np.where(m, t, np.inf), pad]), axis=1)[:, _MIN_SIDE - 1],
+                      -np.sort(np.hstack([np.where(m, -t, np.inf), pad]), axis=1)[:, _MIN_SIDE - 1]])
+    tn = np.where(m, t, np.nan)
+    c, rss, a0, bl, br = (np.empty(n) for _ in range(5))
+    size = max(1, _SEARCH_BLOCK // max(width, 1))
+    for s in range(0, n, size):
+        e = min(s + size, n)
+        c[s:e], rss[s:e], a0[s:e], bl[s:e], br[s:e] = _asym_search(
+            np.ascontiguousarray(tn[s:e].T), np.ascontiguousarray(y[s:e].T), third[:, s:e], n_obs[s:e],
+            yy[s:e], ysum[s:e], lo[s:e], hi[s:e])
     ll, s2 = _gauss_loglik(rss, ne)
     with np.errstate(divide="ignore"):
         wl = np.where(bl > 0, 1.0 / np.sqrt(2.0 * bl), np.inf)
