@@ -11,6 +11,7 @@ from scipy.special import expit
 
 from ..errors import AnalogWarning
 from ..study import Study
+from ._blas import one_blas_thread
 from .fates import compute_fates
 from .matching import match_relatives
 from .params import AnalogParams
@@ -156,6 +157,10 @@ def run_analog(study: Study, params: AnalogParams | None = None, *, rng: np.rand
     Counts (``n_at_risk``, ``n_lost``) are averages over age draws; on ``'pooled'`` rows
     they are sums over the intervals used (taxon-interval pairs).
 
+    OpenBLAS is held to one thread while the stage runs (:mod:`analog.analogs._blas`): the
+    fits multiply skinny matrices, where threads only wait on each other, and a threaded
+    product would make the last bits of the estimates depend on the machine's core count.
+
     References
     ----------
     Foote, M. (2000). Origination and extinction components of taxonomic diversity: general
@@ -169,6 +174,12 @@ def run_analog(study: Study, params: AnalogParams | None = None, *, rng: np.rand
     Gower, J. C. (1971). A general coefficient of similarity and some of its properties.
     Biometrics 27, 857-871.
     """
+    with one_blas_thread():
+        return _run_analog(study, params, rng=rng, progress=progress)
+
+
+def _run_analog(study: Study, params: AnalogParams | None, *, rng: np.random.Generator,
+                progress: Callable[[str, int, int], None] | None) -> AnalogResult:
     from ..reference import interval_weights
 
     params = params or AnalogParams()
