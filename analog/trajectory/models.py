@@ -223,12 +223,67 @@ def _rss(A, r, yy, beta):
     return yy - 2.0 * np.einsum("ni,ni->n", beta, r) + np.einsum("ni,nij,nj->n", beta, A, beta)
 
 
-def _normal_eq(X, y, m):
-    Xm = np.where(m[..., None], X, 0.0)
-    ym = np.where(m, y, 0.0)
-    A = np.einsum("nli,nlj->nij", Xm, Xm)
-    r = np.einsum("nli,nl->ni", Xm, ym)
-    return A, r, (ym ** 2).sum(1)
+_NORMAL_BLOCK = 1 << 15   # series x width per block of the quadratic's normal equations
+
+
+def _quadratic_normal_eq(s, y, m):
+    """Normal equations of the quadratic ``y ~ 1 + s + s²`` for every series (entries outside ``m`` left out).
+
+    Returns ``X'X`` (N, 3, 3), ``X'y`` (N, 3) and ``y'y`` (N,), with ``s`` and ``y``
+    already 0 outside ``m``. ``X'X`` and ``X'y`` hold the sums ``np.einsum('nli,nlj->nij')``
+    and ``np.einsum('nli,nl->ni')`` give for the masked design ``X = [1, s, s²]``; einsum
+    adds the products position after position, and so does this function, on blocks of
+    series held transposed (positions × series) so that each step is one vectorized
+    addition. :func:`_einsum_matches_sequential` checks that order once per process; if
+    it does not hold, ``np.einsum`` itself is used.
+    """
+    mf = m.astype(float)
+    yy = (y ** 2).sum(1)
+    if not _einsum_matches_sequential():
+        X = np.stack([mf, s, s ** 2], axis=-1)
+        return np.einsum("nli,nlj->nij", X, X), np.einsum("nli,nl->ni", X, y), yy
+    n, width = s.shape
+    total = np.empty((9, n))
+    size = max(1, _NORMAL_BLOCK // max(width, 1))
+    for a in range(0, n, size):
+        b = min(a + size, n)
+        x0, x1, yt = (np.ascontiguousarray(v[a:b].T) for v in (mf, s, y))
+        x2 = x1 ** 2
+        prod = np.empty((width, 9, b - a))
+        for k, (u, v) in enumerate(((x0, x0), (x0, x1), (x0, x2), (x1, x1), (x1, x2), (x2, x2),
+                                    (x0, yt), (x1, yt), (x2, yt))):
+            np.multiply(u, v, out=prod[:, k])
+        acc = np.zeros((9, b - a))
+        for i in range(width):
+            acc += prod[i]
+        total[:, a:b] = acc
+    A = np.empty((n, 3, 3))
+    for k, (i, j) in enumerate(((0, 0), (0, 1), (0, 2), (1, 1), (1, 2), (2, 2))):
+        A[:, i, j] = A[:, j, i] = total[k]
+    return A, np.ascontiguousarray(total[6:].T), yy
+
+
+_EINSUM_OK: list[bool] = []
+
+
+def _einsum_matches_sequential() -> bool:
+    """Whether adding products position after position reproduces ``np.einsum`` bit for bit (checked once)."""
+    if not _EINSUM_OK:
+        rng = np.random.default_rng(0)
+        ok = True
+        for n, width in [(1, 1), (1, 9), (2, 5), (7, 17), (300, 8), (300, 24), (1000, 3), (50, 60)]:
+            X = rng.standard_normal((n, width, 3)) * 10.0 ** rng.integers(-6, 7, (n, width, 1))
+            y = rng.standard_normal((n, width))
+            xt, yt = np.moveaxis(X, 1, 0), y.T
+            A = np.zeros((n, 3, 3))
+            r = np.zeros((n, 3))
+            for i in range(width):
+                A += xt[i][:, :, None] * xt[i][:, None, :]
+                r += xt[i] * yt[i][:, None]
+            ok &= np.array_equal(A, np.einsum("nli,nlj->nij", X, X))
+            ok &= np.array_equal(r, np.einsum("nli,nl->ni", X, y))
+        _EINSUM_OK.append(bool(ok))
+    return _EINSUM_OK[0]
 
 
 def _center_scale(batch):
@@ -244,8 +299,7 @@ def _fit_rise_fall(batch: SeriesBatch):
     ne = (batch.n - 1).astype(float)
     c0, sc, _, _ = _center_scale(batch)
     s = np.where(m, (batch.t - c0[:, None]) / sc[:, None], 0.0)
-    X = np.stack([np.ones_like(s), s, s ** 2], axis=-1)
-    A, r, yy = _normal_eq(X, batch.y, m)
+    A, r, yy = _quadratic_normal_eq(s, np.where(m, batch.y, 0.0), m)
     ok = ne >= 3
     A = np.where(ok[:, None, None], A, np.eye(3)[None])
     full = _solve(A, r, [0, 1, 2])
