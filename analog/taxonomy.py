@@ -256,16 +256,20 @@ def shared_rank_depth_blocks(taxa_a: pd.DataFrame, taxa_b: pd.DataFrame, *, bloc
     both = fill_higher_ranks(both) if fill_blanks else pd.concat([both[["taxon_id"]], _rank_text(both)], axis=1)
     codes = [_codes(both[rank], n_a) for rank in RANK_COLUMNS]
     codes.append(_codes(both["taxon_id"].astype("str"), n_a))
+    # a blank (code -1) is never shared: blanks of b get -2, so they equal no code of a
+    codes = [(ca, np.where(cb < 0, -2, cb)) for ca, cb in codes]
     levels = list(range(1, len(RANK_COLUMNS) + 1)) + [_N_LEVELS]
     step = max(1, int(block_rows))
+    same = None
     for start in range(0, n_a, step):
         rows = slice(start, min(n_a, start + step))
-        depth = np.zeros((rows.stop - rows.start, len(taxa_b)), dtype=np.int8)
+        shape = (rows.stop - rows.start, len(taxa_b))
+        depth = np.zeros(shape, dtype=np.int8)
+        if same is None or same.shape != shape:
+            same = np.empty(shape, dtype=bool)
         for level, (ca, cb) in zip(levels, codes):
-            ca = ca[rows]
-            same = ca[:, None] == cb[None, :]
-            same &= (ca >= 0)[:, None]
-            depth[same] = level
+            np.equal(ca[rows][:, None], cb[None, :], out=same)
+            np.copyto(depth, np.int8(level), where=same)
         yield rows, depth
 
 

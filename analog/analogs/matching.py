@@ -144,6 +144,10 @@ def _top_relatives(modern, fossil, traits, mod_ids, fos_ids, k, w, rows_per_bloc
 
     n_mod, n_fos = len(modern), len(fossil)
     kk = min(k, n_fos)
+    # candidates in taxon_id order (ties in similarity go to the smaller id): every distance
+    # depends only on the pair, not on the row order, so the fossil table is put in that order
+    by_id = np.argsort(fos_ids, kind="stable")
+    fossil = fossil.iloc[by_id].reset_index(drop=True)
     ranks = [c for c in RANK_COLUMNS if c in modern.columns] + ["taxon_id"]
     depth_blocks = shared_rank_depth_blocks(modern[ranks], fossil[ranks], block_rows=rows_per_block)
     names = list(traits)
@@ -154,25 +158,34 @@ def _top_relatives(modern, fossil, traits, mod_ids, fos_ids, k, w, rows_per_bloc
     else:
         trait_blocks = ((rows, np.full((rows.stop - rows.start, n_fos), np.nan))
                         for rows, _ in _row_blocks(n_mod, rows_per_block))
-    by_id = np.argsort(fos_ids, kind="stable")   # ties in similarity go to the smaller taxon_id
+    # a taxon is never its own relative: (modern row, fossil column) pairs with the same id
+    id_codes, _ = pd.factorize(np.concatenate([mod_ids, fos_ids[by_id]]))
+    pairs = pd.DataFrame({"code": id_codes[:n_mod], "row": np.arange(n_mod)}).merge(
+        pd.DataFrame({"code": id_codes[n_mod:], "col": np.arange(n_fos)}), on="code")
+    self_row, self_col = pairs["row"].to_numpy(), pairs["col"].to_numpy()
+    # taxonomic distance and its weighted share per depth (8 values), looked up per pair
+    levels8 = np.arange(len(RANK_LEVELS), dtype=np.int8)
+    tax_by_depth = depth_distance(levels8)
+    wtax_by_depth = w * tax_by_depth
     top = np.empty((n_mod, kk))
     order = np.empty((n_mod, kk), dtype=np.intp)
     trait_top = np.empty((n_mod, kk))
     depth_top = np.empty((n_mod, kk), dtype=np.int8)
     for (rows, depth), (rows_t, trait_d) in zip(depth_blocks, trait_blocks):
-        assert rows == rows_t
-        tax_d = depth_distance(depth)
+        if rows != rows_t:
+            raise RuntimeError("taxonomic and trait blocks out of step")
         trait_d = np.asarray(trait_d, dtype=float)
-        dist = np.where(np.isnan(trait_d), tax_d,
-                        np.where(np.isnan(tax_d), trait_d, w * tax_d + (1 - w) * trait_d))
-        del tax_d
-        sim = 1.0 - dist
-        del dist
-        sim[mod_ids[rows][:, None] == fos_ids[None, :]] = -np.inf   # never its own relative
-        sim = np.where(np.isnan(sim), -np.inf, sim)
-        pos = _top_k_stable(sim[:, by_id], kk)
-        cols = by_id[pos]
-        order[rows] = cols
+        # 1 - (w * taxonomic + (1 - w) * trait), or 1 - taxonomic where no trait can be compared
+        sim = np.multiply(1 - w, trait_d)
+        sim += wtax_by_depth[depth]
+        gap = np.isnan(trait_d)
+        if gap.any():
+            sim[gap] = tax_by_depth[depth[gap]]
+        np.subtract(1.0, sim, out=sim)
+        here = (self_row >= rows.start) & (self_row < rows.stop)
+        sim[self_row[here] - rows.start, self_col[here]] = -np.inf
+        cols = _top_k_stable(sim, kk)
+        order[rows] = by_id[cols]
         top[rows] = np.take_along_axis(sim, cols, axis=1)
         trait_top[rows] = np.take_along_axis(trait_d, cols, axis=1)
         depth_top[rows] = np.take_along_axis(depth, cols, axis=1)
@@ -195,15 +208,20 @@ def _top_k_stable(sim: np.ndarray, k: int) -> np.ndarray:
     n, m = sim.shape
     if k <= 0 or n == 0:
         return np.empty((n, max(k, 0)), dtype=np.intp)
-    neg = -sim
-    kth = np.take_along_axis(neg, np.argpartition(neg, k - 1, axis=1)[:, k - 1:k], axis=1)
-    below = neg < kth
-    tied = neg == kth
-    need = k - below.sum(axis=1, keepdims=True)
-    chosen = below | (tied & (np.cumsum(tied, axis=1) <= need))
+    kth = np.take_along_axis(sim, np.argpartition(sim, m - k, axis=1)[:, m - k:m - k + 1], axis=1)
+    chosen = sim > kth
+    need = k - chosen.sum(axis=1)
+    tied = sim == kth
+    short = np.flatnonzero(tied.sum(axis=1) > need)      # rows with more ties than places left
+    if short.size:
+        sub = tied[short]
+        sub &= np.cumsum(sub, axis=1) <= need[short, None]
+        tied[short] = sub
+    chosen |= tied
     cols = np.nonzero(chosen)[1].reshape(n, k)            # ascending column within each row
-    vals = np.take_along_axis(neg, cols, axis=1)
-    return np.take_along_axis(cols, np.argsort(vals, axis=1, kind="stable"), axis=1)
+    vals = np.take_along_axis(sim, cols, axis=1)
+    return np.take_along_axis(cols, np.argsort(-vals, axis=1, kind="stable"), axis=1)
+
 
 
 def _reasons(modern: pd.DataFrame, fossil: pd.DataFrame, traits: dict[str, TraitSpec],

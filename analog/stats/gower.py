@@ -155,15 +155,93 @@ def _plan(a, b, kinds, *, levels, weights, ranges, ordinal):
     encoded = [_encode(a[col], b[col], col, kind, same, levels.get(col), ranges.get(col), ordinal)
                for col, kind in kinds.items()]
     col_weights = [float(weights.get(col, 1.0)) for col in kinds]
-    return encoded, col_weights, len(b)
+    classed = [kind != "numeric" for kind in kinds.values()]
+    return encoded, col_weights, len(b), _class_tables(encoded, col_weights, classed)
+
+
+_MAX_COMBOS = 1 << 40        # mixed-radix codes of the leading class variables must fit an int64
+_MAX_TABLE = 1 << 22         # distinct combinations of a x of b tabulated (32 MB per table)
+
+
+def _class_tables(encoded, col_weights, classed):
+    """Pairwise sums of the leading class variables, tabulated over their distinct combinations.
+
+    Categorical, binary and ordinal variables take few distinct values, so their terms of
+    ``num`` and ``den`` depend only on the pair of value combinations. For the longest run of
+    such variables at the start (numeric variables break it; zero-weight ones are skipped, as
+    in the sums), the running sums are computed once per pair of distinct combinations, with
+    the same operations in the same order as row by row, and later looked up: the same numbers.
+
+    Returns None or ``(n_leading, codes_a, codes_b, num, den, dist)`` (``dist`` when every
+    variable is in the run).
+    """
+    lead = 0
+    parts = []          # (codes_a, codes_b, values incl. missing last, dist, w) of each leading variable
+    combos = 1
+    for (dist, va, vb), w, is_class in zip(encoded, col_weights, classed):
+        if w == 0:
+            lead += 1
+            continue
+        if not is_class:
+            break
+        both = np.concatenate([va, vb])
+        values = np.unique(both[~np.isnan(both)])
+        if combos * (values.size + 1) > _MAX_COMBOS:
+            break
+        fill = values[0] if values.size else 0.0
+        ca = np.where(np.isnan(va), values.size, np.searchsorted(values, np.where(np.isnan(va), fill, va)))
+        cb = np.where(np.isnan(vb), values.size, np.searchsorted(values, np.where(np.isnan(vb), fill, vb)))
+        missing = np.array([np.nan], dtype=values.dtype)
+        parts.append((ca, cb, np.concatenate([values, missing]), dist, w))
+        combos *= values.size + 1
+        lead += 1
+    if not parts:
+        return None
+    stride = 1
+    ja = np.zeros(parts[0][0].size, dtype=np.int64)
+    jb = np.zeros(parts[0][1].size, dtype=np.int64)
+    strides = []
+    for ca, cb, values, _, _ in parts:
+        strides.append(stride)
+        ja += ca * stride
+        jb += cb * stride
+        stride *= values.size
+    ua, codes_a = np.unique(ja, return_inverse=True)
+    ub, codes_b = np.unique(jb, return_inverse=True)
+    if ua.size * ub.size > _MAX_TABLE:
+        return None
+    num = np.zeros((ua.size, ub.size))
+    den = np.zeros_like(num)
+    for (_, _, values, dist, w), st in zip(parts, strides):
+        xa = values[(ua // st) % values.size]
+        xb = values[(ub // st) % values.size]
+        valid = ~np.isnan(xa)[:, None] & ~np.isnan(xb)[None, :]
+        with np.errstate(invalid="ignore"):
+            d = dist(xa[:, None], xb[None, :])
+        num += w * np.where(valid, d, 0.0)
+        den += w * valid
+    full = None
+    if lead == len(encoded):
+        with np.errstate(invalid="ignore", divide="ignore"):
+            full = np.where(den > 0, num / den, np.nan)
+    return lead, codes_a.ravel(), codes_b.ravel(), num, den, full
 
 
 def _rows(plan, rows: slice) -> np.ndarray:
     """Distances of the rows ``rows`` of ``a`` to every row of ``b``."""
-    encoded, col_weights, m = plan
-    num = np.zeros((rows.stop - rows.start, m))
-    den = np.zeros_like(num)
-    for (dist, va, vb), w in zip(encoded, col_weights):
+    encoded, col_weights, m, tables = plan
+    lead = 0
+    if tables is not None:
+        lead, codes_a, codes_b, num_t, den_t, full = tables
+        ia = codes_a[rows]
+        if full is not None:
+            return full[ia][:, codes_b]
+        num = num_t[ia][:, codes_b]
+        den = den_t[ia][:, codes_b]
+    else:
+        num = np.zeros((rows.stop - rows.start, m))
+        den = np.zeros_like(num)
+    for (dist, va, vb), w in zip(encoded[lead:], col_weights[lead:]):
         if w == 0:
             continue
         xa = va[rows]

@@ -191,3 +191,31 @@ def test_blocks_equal_whole_matrix_for_any_block_size():
         parts = list(gower_blocks(a, b, kinds, levels=levels, block_rows=size))
         assert [r.start for r, _ in parts] == list(range(0, n, size))
         np.testing.assert_array_equal(np.vstack([d for _, d in parts]), whole)
+
+
+@pytest.mark.parametrize("order", [("c", "o", "b", "x", "c2"), ("x", "c", "o"), ("c", "o", "b", "c2"),
+                                   ("gone", "c", "x", "o")])
+@pytest.mark.parametrize("ordinal", ["podani", "ranks"])
+def test_tabulated_class_variables_give_the_row_by_row_numbers(order, ordinal):
+    # the leading class variables are summed once per pair of distinct value combinations and
+    # looked up; the numbers must be bit for bit those of the row-by-row sums
+    from analog.stats.gower import _plan, _rows
+
+    rng = np.random.default_rng(11)
+    n = 40
+    a = pd.DataFrame({"x": rng.normal(size=n), "c": rng.choice(["p", "q", "r"], n),
+                      "o": rng.choice(["low", "mid", "high"], n), "b": rng.integers(0, 2, n).astype(float),
+                      "c2": rng.choice(["u", "v"], n), "gone": None})
+    for col, step in (("x", 5), ("c", 7), ("o", 3), ("b", 11)):
+        a.loc[::step, col] = None
+    b = a.sample(frac=0.6, random_state=2).reset_index(drop=True)
+    kinds = {"x": "numeric", "c": "categorical", "o": "ordinal", "b": "binary", "c2": "categorical",
+             "gone": "categorical"}
+    kinds = {k: kinds[k] for k in order}
+    weights = {k: w for k, w in zip(order, (1.0, 0.5, 2.0, 0.0, 1.3))}
+    plan = _plan(a, b, kinds, levels={"o": ["low", "mid", "high"]}, weights=weights, ranges=None,
+                 ordinal=ordinal)
+    assert (plan[3] is not None) == (order[0] != "x")
+    row_by_row = plan[:3] + (None,)
+    for rows in (slice(0, n), slice(3, 17)):
+        np.testing.assert_array_equal(_rows(plan, rows), _rows(row_by_row, rows))
