@@ -354,9 +354,9 @@ def _pairwise(a):
             res += a[i]
         return res
     if n <= 128:
-        r = a[:8].copy()
         stop = n - n % 8
-        for i in range(8, stop, 8):
+        r = a[:8] if stop == 8 else a[:8] + a[8:16]
+        for i in range(16, stop, 8):
             r += a[i:i + 8]
         res = ((r[0] + r[1]) + (r[2] + r[3])) + ((r[4] + r[5]) + (r[6] + r[7]))
         for i in range(stop, n):
@@ -604,8 +604,20 @@ def fit_model(name: str, batch: SeriesBatch, *, min_series_bins: int = 3) -> Mod
     if len(batch) == 0:
         empty = np.zeros(0)
         return ModelFit(name, k, empty, empty, empty, {})
-    ll, params = _FITTERS[name](batch)
     usable = (batch.n >= max(min_series_bins, 2)) & (n_eff - k - 1 > 0)
+    if usable.all():
+        ll, params = _FITTERS[name](batch)
+    else:
+        # series without an AICc are not fitted at all (their numbers would be NaN); each
+        # series' fit depends on its own row only, so the others get the same numbers
+        keep = np.flatnonzero(usable)
+        ll_kept, kept = _FITTERS[name](batch.take(keep))
+        ll = np.full(len(batch), np.nan)
+        ll[keep] = ll_kept
+        params = {}
+        for p, v in kept.items():
+            params[p] = np.full(len(batch), np.nan)
+            params[p][keep] = v
     ll = np.where(usable, ll, np.nan)
     with np.errstate(invalid="ignore", divide="ignore"):
         score = np.asarray(aicc(ll, k, np.where(usable, n_eff, np.nan)), dtype=float)
