@@ -52,7 +52,7 @@ def _no_rank(value) -> bool:
 
 def match_relatives(modern: pd.DataFrame, fossil: pd.DataFrame, traits: dict[str, TraitSpec], *,
                     taxonomy_weight: float = 0.5, n_relatives: int = 5,
-                    min_similarity: float = 0.5, block_pairs: int | None = BLOCK_PAIRS) -> Matches:
+                    min_similarity: float = 0.5, block_pairs: int | None = None) -> Matches:
     """The most similar fossil relatives of each modern taxon.
 
     Parameters
@@ -66,9 +66,10 @@ def match_relatives(modern: pd.DataFrame, fossil: pd.DataFrame, traits: dict[str
         Share ``w`` of taxonomic distance in the combined distance.
     n_relatives : int, default=5
     min_similarity : float, default=0.5
-    block_pairs : int or None, default=BLOCK_PAIRS
-        Modern x fossil pairs compared at once (blocks of modern taxa); None compares all
-        at once. The block size changes no result, only the memory held.
+    block_pairs : int, optional
+        Modern x fossil pairs compared at once (blocks of modern taxa; at least one modern
+        taxon per block); default ``BLOCK_PAIRS``. The block size changes no result, only
+        the memory held.
 
     Returns
     -------
@@ -108,7 +109,7 @@ def match_relatives(modern: pd.DataFrame, fossil: pd.DataFrame, traits: dict[str
     fossil = fossil.reset_index(drop=True)
     mod_ids = modern["taxon_id"].astype(str).to_numpy()
     fos_ids = fossil["taxon_id"].astype(str).to_numpy()
-    rows_per_block = max(1, int(block_pairs) // n_fos) if block_pairs else n_mod
+    rows_per_block = max(1, int(BLOCK_PAIRS if block_pairs is None else block_pairs) // n_fos)
     top, order, trait_top, depth_top = _top_relatives(modern, fossil, traits, mod_ids, fos_ids, k,
                                                       float(taxonomy_weight), rows_per_block)
     keep = top >= min_similarity

@@ -128,7 +128,7 @@ def test_blocked_matching_equals_whole_matrices_for_any_block_size():
     kw = dict(taxonomy_weight=0.4, n_relatives=5, min_similarity=0.3)
     index, similarity = _brute_force_matches(modern, fossil, traits, **kw)
     tables = []
-    for block_pairs in (None, 1, 7 * len(fossil), 50 * len(fossil) + 3):
+    for block_pairs in (10 ** 12, None, 1, 7 * len(fossil), 50 * len(fossil) + 3):
         m = match_relatives(modern, fossil, traits, block_pairs=block_pairs, **kw)
         np.testing.assert_array_equal(m.index, index)
         np.testing.assert_array_equal(m.similarity, similarity)

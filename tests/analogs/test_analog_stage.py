@@ -183,3 +183,31 @@ def test_missing_trait_of_a_modern_taxon_is_noted():
     assert r.risk.set_index("taxon_id").drop(tid)["note"].str.contains("Depth zone").sum() == 0
     c = r.contributions[r.contributions["taxon_id"] == tid].set_index("term")["log_odds_contribution"]
     assert c.loc["depth_zone[basin]"] != 0 and c.loc["depth_zone[slope]"] != 0  # average, not the reference
+
+
+def test_block_sizes_do_not_change_any_result(monkeypatch):
+    # the stage computes age draws and matching distances in blocks to bound memory; with
+    # tiny blocks (one draw, a few pairs at a time) every table, draw and note is the same
+    import analog.analogs.fates as fates_mod
+    import analog.analogs.matching as matching_mod
+
+    study, _ = simulate_study(21, n_taxa=250)
+    params = AnalogParams(age_draws=4, n_bootstrap=6)
+
+    def run():
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", AnalogWarning)
+            return run_analog(study, params, rng=np.random.default_rng(8))
+
+    whole = run()
+    assert fates_mod.DRAW_BLOCK_VALUES >= 4 * len(study.fossil_occurrences)   # one block by default
+    assert matching_mod.BLOCK_PAIRS >= len(study.taxa) ** 2
+    monkeypatch.setattr(fates_mod, "DRAW_BLOCK_VALUES", 1)                     # one draw per block
+    monkeypatch.setattr(matching_mod, "BLOCK_PAIRS", 1)                        # one modern taxon per block
+    blocked = run()
+    for name, table in whole.tables().items():
+        pd.testing.assert_frame_equal(blocked.tables()[name], table, check_exact=True, obj=name)
+    pd.testing.assert_frame_equal(blocked.risk_draws, whole.risk_draws, check_exact=True)
+    pd.testing.assert_frame_equal(blocked.contributions, whole.contributions, check_exact=True)
+    assert blocked.notes == whole.notes
+    assert len(whole.matches) > 0 and whole.risk["analog_p"].notna().any()
