@@ -194,15 +194,21 @@ def _fit_stasis(batch: SeriesBatch):
     return ll, {"mean_logit": theta, "sd": np.sqrt(s2)}
 
 
-def _fit_walk(batch: SeriesBatch, drift: bool):
+def _walk_parts(batch: SeriesBatch):
+    """Increments, time steps, their count and summed log steps (shared by both random walks)."""
     md = batch.mask[:, 1:]
     dy = np.where(md, np.diff(batch.y, axis=1), 0.0)
     dt = np.where(md, np.diff(batch.t, axis=1), 1.0)
     ne = md.sum(1).astype(float)
+    logdt = np.where(md, np.log(dt), 0.0).sum(1)
+    return md, dy, dt, ne, logdt
+
+
+def _fit_walk(batch: SeriesBatch, drift: bool, parts=None):
+    md, dy, dt, ne, logdt = _walk_parts(batch) if parts is None else parts
     with np.errstate(invalid="ignore", divide="ignore"):
         mu = dy.sum(1) / np.where(md, dt, 0.0).sum(1) if drift else np.zeros(len(batch))
     r = np.where(md, (dy - mu[:, None] * dt) ** 2 / dt, 0.0).sum(1)
-    logdt = np.where(md, np.log(dt), 0.0).sum(1)
     ll, s2 = _gauss_loglik(r, ne, extra=0.5 * logdt)
     params = {"drift_per_myr": mu, "step_sd": np.sqrt(s2)} if drift else {"step_sd": np.sqrt(s2)}
     return ll, params
@@ -595,6 +601,11 @@ def fit_model(name: str, batch: SeriesBatch, *, min_series_bins: int = 3) -> Mod
     ``n_eff = n − 1`` for every model. Error terms are Gaussian on the logit scale;
     sampling noise of the empirical logit is absorbed in the fitted variance.
     """
+    return _fit_model(name, batch, min_series_bins, None)
+
+
+def _fit_model(name: str, batch: SeriesBatch, min_series_bins: int, shared: dict | None) -> ModelFit:
+    """:func:`fit_model`; ``shared`` carries work common to several models of one batch."""
     from ..stats import aicc
 
     if name not in _FITTERS:
@@ -606,7 +617,12 @@ def fit_model(name: str, batch: SeriesBatch, *, min_series_bins: int = 3) -> Mod
         return ModelFit(name, k, empty, empty, empty, {})
     usable = (batch.n >= max(min_series_bins, 2)) & (n_eff - k - 1 > 0)
     if usable.all():
-        ll, params = _FITTERS[name](batch)
+        if shared is not None and name in ("random_walk", "random_walk_drift"):
+            if "walk" not in shared:
+                shared["walk"] = _walk_parts(batch)
+            ll, params = _fit_walk(batch, drift=name == "random_walk_drift", parts=shared["walk"])
+        else:
+            ll, params = _FITTERS[name](batch)
     else:
         # series without an AICc are not fitted at all (their numbers would be NaN); each
         # series' fit depends on its own row only, so the others get the same numbers
@@ -658,7 +674,8 @@ def fit_models(batch: SeriesBatch, *, models=MODEL_NAMES, min_series_bins: int =
     2nd ed. Springer (Akaike weights).
     """
     models = tuple(models)
-    fits = {m: fit_model(m, batch, min_series_bins=min_series_bins) for m in models}
+    shared: dict = {}
+    fits = {m: _fit_model(m, batch, min_series_bins, shared) for m in models}
     scores = np.column_stack([fits[m].aicc for m in models]) if len(batch) else np.zeros((0, len(models)))
     return FitSet(batch, fits, _weights(scores), models)
 
