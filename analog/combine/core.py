@@ -99,8 +99,7 @@ def combine_evidence(study, analog_result, trajectory_result, params: CombinePar
     low = pd.Series(np.nan, index=frame.index)
     high = pd.Series(np.nan, index=frame.index)
     if len(ids) and combined.shape[1]:
-        low.loc[ids] = np.nanquantile(combined, alpha, axis=1)
-        high.loc[ids] = np.nanquantile(combined, 1.0 - alpha, axis=1)
+        low.loc[ids], high.loc[ids] = _row_quantiles(combined, (alpha, 1.0 - alpha))
     frame["combined_low"], frame["combined_high"] = low, high
     if progress:
         progress("combine", 2, 4)
@@ -138,6 +137,22 @@ def combine_evidence(study, analog_result, trajectory_result, params: CombinePar
                           sensitivity=sensitivity, draws=combined_draws, weights=weights,
                           analog_draws=a_draws, trajectory_draws=t_draws, skill=skill, params=params,
                           warnings=notes)
+
+
+def _row_quantiles(values: np.ndarray, qs) -> list[np.ndarray]:
+    """``np.nanquantile(values, q, axis=1)`` for each ``q``: rows without NaN in one vectorized
+    ``np.quantile`` (the same numbers), only the rows with NaN one by one."""
+    gaps = np.isnan(values).any(axis=1)
+    out = [np.empty(values.shape[0]) for _ in qs]
+    full = np.flatnonzero(~gaps)
+    if len(full):
+        for o, q in zip(out, np.quantile(values[full], qs, axis=1)):
+            o[full] = q
+    if gaps.any():
+        rows = values[gaps]
+        for o, q in zip(out, qs):
+            o[gaps] = np.nanquantile(rows, q, axis=1)
+    return out
 
 
 # -- weights ------------------------------------------------------------------------------------
@@ -202,7 +217,8 @@ def _line_frame(study, analog_result, trajectory_result) -> pd.DataFrame:
             dup = risk.loc[risk["taxon_id"].duplicated(), "taxon_id"].iloc[0]
             raise AnalogError(f"the {line} risk table lists taxon '{dup}' more than once")
         parts[line] = risk.set_index("taxon_id")[[c for c in cols[line] if c in risk.columns]]
-        ids += [t for t in parts[line].index if t not in set(ids)]
+        known = set(ids)
+        ids += [t for t in parts[line].index if t not in known]
     ids = list(dict.fromkeys(ids))
     frame = pd.DataFrame(index=pd.Index(ids, name="taxon_id"))
     frame["scientificName"] = [names.get(t, t) for t in ids]

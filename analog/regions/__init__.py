@@ -4,10 +4,11 @@ taxonomic diversity)."""
 from __future__ import annotations
 
 from .core import assess_regions
-from .diversity import branch_incidence, expected_diversity_loss
+from .diversity import branch_incidence, expected_diversity_loss, expected_diversity_losses
 from .params import PARAMS, RegionParams
 from .result import RegionResult
 from .spatial import EqualArea, assign_points, equal_area_crs, region_areas_km2
 
 __all__ = ["assess_regions", "RegionResult", "RegionParams", "PARAMS", "assign_points", "equal_area_crs",
-           "EqualArea", "region_areas_km2", "branch_incidence", "expected_diversity_loss"]
+           "EqualArea", "region_areas_km2", "branch_incidence", "expected_diversity_loss",
+           "expected_diversity_losses"]

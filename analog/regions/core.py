@@ -10,7 +10,7 @@ import scipy.sparse as sp
 
 from ..errors import AnalogWarning
 from ..figures.style import TIER_NAMES
-from .diversity import branch_incidence, expected_diversity_loss
+from .diversity import branch_incidence, expected_diversity_losses
 from .params import PARAMS, RegionParams
 from .result import LINE_COLUMNS, PRESENCE_COLUMNS, SUMMARY_COLUMNS, RegionResult
 from .spatial import assign_points, equal_area_crs, region_areas_km2
@@ -229,10 +229,13 @@ def _diversity(study, taxa, mask, p, draws, alpha, rid, notes, engine=None) -> p
     ids = taxa[assessed]
     inc, _ = branch_incidence(tree, ids)
     m = sp.csc_matrix(mask)[np.flatnonzero(assessed)]
-    out["diversity_loss"] = expected_diversity_loss(inc, m, p[assessed])
-    out["diversity_total"] = expected_diversity_loss(inc, m, np.ones(assessed.sum()))
+    ps = [p[assessed], np.ones(assessed.sum())]
     if draws.shape[1]:
-        per_draw = expected_diversity_loss(inc, m, np.nan_to_num(draws[assessed], nan=0.0), engine=engine)
+        ps.append(np.nan_to_num(draws[assessed], nan=0.0))
+    losses = expected_diversity_losses(inc, m, ps, engine=engine)  # one pass over the regions for all three
+    out["diversity_loss"], out["diversity_total"] = losses[0], losses[1]
+    if draws.shape[1]:
+        per_draw = losses[2]
         out["diversity_loss_low"] = np.quantile(per_draw, alpha, axis=1)
         out["diversity_loss_high"] = np.quantile(per_draw, 1 - alpha, axis=1)
     return out

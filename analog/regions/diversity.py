@@ -81,6 +81,7 @@ def expected_diversity_loss(incidence: sp.csr_matrix, present: np.ndarray, p: np
     product of their probabilities, and the expected loss of tree length is the sum over
     branches (Faith 2008, the complement of expected phylogenetic diversity). Taxa absent from
     the region do not protect its branches. The products are taken as sums of logs.
+    :func:`expected_diversity_losses` computes several probability arrays in one pass.
 
     References
     ----------
@@ -88,42 +89,98 @@ def expected_diversity_loss(incidence: sp.csr_matrix, present: np.ndarray, p: np
     conservation scenarios based on estimated extinction probabilities and phylogenetic risk
     analysis. Conservation Biology 22, 1461-1470.
     """
-    p = np.asarray(p, dtype=float)
-    squeeze = p.ndim == 1
-    if squeeze:
-        p = p[:, None]
+    return expected_diversity_losses(incidence, present, [p], lengths=lengths, engine=engine)[0]
+
+
+def expected_diversity_losses(incidence: sp.csr_matrix, present: np.ndarray, ps, *,
+                              lengths: np.ndarray | None = None, engine=None) -> list[np.ndarray]:
+    """:func:`expected_diversity_loss` for each probability array of ``ps``, in one pass over the regions.
+
+    Each region's tree (the branches its taxa span) is worked out once for all of ``ps``; the
+    numbers are the same as from separate calls.
+
+    Notes
+    -----
+    A branch with a single present taxon below it has that taxon's probability as its loss
+    probability; those come from one exponentiation of every taxon's log-probabilities, shared
+    by all regions. Branches with two or more present taxa sum their taxa's log-probabilities
+    (in taxon order, as a sparse product adds them) and exponentiate per region.
+    """
+    arrays = []
+    for p in ps:
+        p = np.asarray(p, dtype=float)
+        arrays.append((p[:, None] if p.ndim == 1 else p, p.ndim == 1))
     present = sp.csc_matrix(present, dtype=float)
     n_regions = present.shape[1]
     lengths = np.ones(incidence.shape[0]) if lengths is None else np.asarray(lengths, dtype=float)
-    with np.errstate(divide="ignore"):
-        logp = np.nan_to_num(np.log(np.clip(p, 0.0, 1.0)), neginf=-1e300)  # p = 0: the branch certainly survives
+    logps, exps = [], []
+    for p, _ in arrays:
+        with np.errstate(divide="ignore"):
+            logp = np.nan_to_num(np.log(np.clip(p, 0.0, 1.0)), neginf=-1e300)  # p = 0: the branch certainly survives
+        logps.append(logp)
+        exps.append(np.exp(logp))
     below = sp.csr_matrix(incidence).T.tocsr()      # taxa x branches: the branches above each taxon
     blocks = split_counts(n_regions, _REGIONS_PER_CHUNK)
     with engine_scope(engine) as eng:
-        parts = eng.map(_loss_block, blocks, shared=(below, present, logp, lengths))
-    out = np.vstack(parts) if parts else np.zeros((0, p.shape[1]))
-    return out[:, 0] if squeeze else out
+        parts = eng.map(_loss_block, blocks, shared=(below, present, logps, exps, lengths))
+    out = []
+    for j, (p, squeeze) in enumerate(arrays):
+        res = np.vstack([part[j] for part in parts]) if parts else np.zeros((0, p.shape[1]))
+        out.append(res[:, 0] if squeeze else res)
+    return out
 
 
 _REGIONS_PER_CHUNK = 50
 
 
-def _loss_block(block, shared) -> np.ndarray:
-    """Expected loss for the regions ``block = (start, stop)``: one sparse product per region,
-    over the branches its taxa span."""
-    below, present, logp, lengths = shared
+def _loss_block(block, shared) -> list[np.ndarray]:
+    """Expected loss for the regions ``block = (start, stop)``, one array per probability array:
+    one sparse product per region, over the branches its taxa span."""
+    below, present, logps, exps, lengths = shared
     start, stop = block
-    out = np.zeros((stop - start, logp.shape[1]))
-    for k, r in enumerate(range(start, stop)):
+    outs = [np.zeros((stop - start, logp.shape[1])) for logp in logps]
+    with _one_blas_thread():
+        _loss_regions(range(start, stop), below, present, logps, exps, lengths, outs)
+    return outs
+
+
+def _one_blas_thread():
+    """Limit BLAS to one thread: each region's products are small, and waking BLAS threads for
+    them costs more than it saves (many times more on a busy machine). The products give the same
+    numbers with one thread as with several (tests/regions/test_regions_diversity.py checks it
+    against the straightforward computation run with the default threads)."""
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # threadpoolctl comes with scikit-learn (a dependency of mapclassify)
+        from contextlib import nullcontext
+        return nullcontext()
+    return threadpool_limits(1, user_api="blas")
+
+
+def _loss_regions(regions, below, present, logps, exps, lengths, outs) -> None:
+    for k, r in enumerate(regions):
         lo, hi = present.indptr[r], present.indptr[r + 1]
         idx = present.indices[lo:hi][present.data[lo:hi] != 0]
         if not len(idx):
             continue
         sub = below[idx]
         branches, col = _codes(sub.indices)
-        sub = sp.csr_matrix((sub.data, col, sub.indptr), shape=(len(idx), len(branches)))
-        out[k] = lengths[branches] @ np.exp(sub.T @ logp[idx])
-    return out
+        # branches x taxa of this region; rows list their taxa in ascending order
+        per_branch = sp.csr_matrix((sub.data, col, sub.indptr), shape=(len(idx), len(branches))).T.tocsr()
+        count = np.diff(per_branch.indptr)
+        first = per_branch.indptr[:-1]
+        one = (count == 1) & (per_branch.data[np.minimum(first, max(per_branch.nnz - 1, 0))] == 1.0)
+        single = np.flatnonzero(one)
+        multi = np.flatnonzero(~one)
+        single_taxon = idx[per_branch.indices[first[single]]]
+        several = per_branch[multi]
+        weights = lengths[branches]
+        for out, logp, e in zip(outs, logps, exps):
+            # log of a branch's loss probability: 0 + 1 * log p of a lone taxon is log p itself
+            prob = np.empty((len(branches), logp.shape[1]))
+            prob[single] = e[single_taxon]
+            prob[multi] = np.exp(several @ logp[idx])
+            out[k] = weights @ prob
 
 
 def _codes(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

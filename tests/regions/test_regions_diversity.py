@@ -79,3 +79,52 @@ def test_taxon_found_by_node_attribute_and_missing_taxon_raises():
     assert inc.toarray().ravel().tolist() == [1.0, 1.0]
     with pytest.raises(KeyError, match="taxon 'y' is not in the rank tree"):
         branch_incidence(g, ["y"])
+
+
+def _straightforward_loss(incidence, present, p):
+    """The plain formula, region by region with the default BLAS threads: the sparse product of
+    every branch the region's taxa span, exponentiated, weighted by unit lengths."""
+    import scipy.sparse as sp
+
+    with np.errstate(divide="ignore"):
+        logp = np.nan_to_num(np.log(np.clip(p, 0.0, 1.0)), neginf=-1e300)
+    below = sp.csr_matrix(incidence).T.tocsr()
+    present = sp.csc_matrix(present, dtype=float)
+    out = np.zeros((present.shape[1], p.shape[1]))
+    for r in range(present.shape[1]):
+        idx = present.indices[present.indptr[r]:present.indptr[r + 1]]
+        if not len(idx):
+            continue
+        sub = below[idx]
+        branches = np.unique(sub.indices)
+        out[r] = np.ones(len(branches)) @ np.exp(sub[:, branches].T @ logp[idx])
+    return out
+
+
+def test_regions_pass_gives_the_same_numbers_as_the_straightforward_product():
+    """Shared exponentials for branches with one present taxon, several probability arrays in one
+    pass and one BLAS thread: the same floats, bit for bit, as the plain computation (which the
+    region table and regions.gpkg stored before)."""
+    from analog.regions import expected_diversity_losses
+
+    rng = np.random.default_rng(7)
+    n_taxa, n_regions, n_draws = 3000, 12, 200
+    g = nx.DiGraph()
+    for i in range(n_taxa):  # phylum -> class -> order -> family -> taxon, uneven family sizes
+        fam = int(rng.integers(0, 300))
+        g.add_edges_from([("root", f"P{fam % 4}"), (f"P{fam % 4}", f"C{fam % 20}"), (f"C{fam % 20}", f"O{fam % 60}"),
+                          (f"O{fam % 60}", f"F{fam}"), (f"F{fam}", f"t{i}")])
+    taxa = [f"t{i}" for i in range(n_taxa)]
+    inc, _ = branch_incidence(g, taxa)
+    present = rng.random((n_taxa, n_regions)) < rng.uniform(0.02, 0.5, n_regions)
+    present[:, -1] = False                                       # a region without taxa
+    draws = rng.beta(0.7, 2.0, (n_taxa, n_draws))
+    draws[rng.random(draws.shape) < 0.01] = 0.0                  # certain survival (log p = -inf)
+    draws[rng.random(draws.shape) < 0.01] = 1.0
+    p = draws.mean(axis=1)
+    loss, total, per_draw = expected_diversity_losses(inc, present, [p, np.ones(n_taxa), draws])
+    assert np.array_equal(per_draw, _straightforward_loss(inc, present, draws))
+    assert np.array_equal(loss, _straightforward_loss(inc, present, p[:, None])[:, 0])
+    assert np.array_equal(total, _straightforward_loss(inc, present, np.ones((n_taxa, 1)))[:, 0])
+    assert np.array_equal(expected_diversity_loss(inc, present, draws), per_draw)
+    assert per_draw[-1].tolist() == [0.0] * n_draws
