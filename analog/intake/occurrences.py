@@ -62,6 +62,12 @@ def link_taxa(typed: pd.DataFrame, taxa: pd.DataFrame, schema: TableSchema, file
     schema's foreign key says ``onMissing: drop``, rows left out and recorded.
     Names are compared once per distinct name; the rows follow by their codes.
     """
+    ids, pos, drop = _link(typed, taxa, schema, file, findings, role=role)
+    return _ids_at(ids, pos, typed.index), drop
+
+
+def _link(typed, taxa, schema: TableSchema, file: str, findings: Findings, *, role: str):
+    """As :func:`link_taxa`, with each row's taxon as a position in the distinct taxon ids (-1 = none)."""
     schema.rule("taxon_reference")
     rows = np.arange(len(typed)) + 2
     ids = pd.Index(taxa["taxon_id"].astype("str")).dropna().drop_duplicates()
@@ -87,7 +93,7 @@ def link_taxa(typed: pd.DataFrame, taxa: pd.DataFrame, schema: TableSchema, file
         findings.rows(file, "taxon_id / scientificName", rows[none], "no taxon_id and no scientificName",
                       "a taxon_id or a scientificName in every row", "fill one of the two columns in these rows")
     if not by_name.any():
-        return _ids_at(ids, pos, typed.index), drop
+        return ids, pos, drop
 
     exact, ambiguous = _unique_map(name_key(taxa["scientificName"]), taxa["taxon_id"])
     canon, ambiguous_canon = _unique_map(canonical_name(taxa["scientificName"]), taxa["taxon_id"])
@@ -111,9 +117,8 @@ def link_taxa(typed: pd.DataFrame, taxa: pd.DataFrame, schema: TableSchema, file
                           f"of scientificName (e.g. {show(sub.iloc[first])})")
     pos[by_name] = ids.get_indexer(hit)[codes]
     unmatched = by_name & (pos < 0)
-    out = _ids_at(ids, pos, typed.index)
     if not unmatched.any():
-        return out, drop
+        return ids, pos, drop
     um_names = as_text(names[unmatched])
     is_amb = name_key(um_names).isin(ambiguous).to_numpy()
     policy = _on_missing(schema, "scientificName")
@@ -143,7 +148,7 @@ def link_taxa(typed: pd.DataFrame, taxa: pd.DataFrame, schema: TableSchema, file
         findings.rows(file, "scientificName", rows[unmatched], found,
                       "a scientificName of the taxa table (trimmed, case ignored)",
                       "correct the name, give the taxon_id instead, or add the taxon to the taxa table")
-    return out, drop
+    return ids, pos, drop
 
 
 def _has_group(schema: TableSchema, columns, name: str) -> bool:
@@ -272,13 +277,15 @@ def check_modern(table, columns, schema: TableSchema, taxa: pd.DataFrame | None,
         typed.loc[blank_id, "occurrenceID"] = [f"{file}:row{r}" for r in rows[blank_id]]
         findings.warn(f"{file}: {int(blank_id.sum())} row(s) without occurrenceID; named '<file>:row<n>'")
     if taxa is not None and ok:
-        typed["taxon_id"], unmatched = link_taxa(typed, taxa, schema, file, findings, role="modern_occurrences")
+        ids, pos, unmatched = _link(typed, taxa, schema, file, findings, role="modern_occurrences")
+        typed["taxon_id"] = _ids_at(ids, pos, typed.index)
         drop |= unmatched
         schema.rule("extant_only")
         extant_ids = set(taxa.loc[taxa["extant"], "taxon_id"])
-        gone = typed["taxon_id"].notna().to_numpy() & ~typed["taxon_id"].isin(extant_ids).to_numpy() & ~drop
+        living = np.append(ids.isin(extant_ids), False)  # by position; -1 (no taxon) -> False
+        gone = (pos >= 0) & ~living[pos] & ~drop
         if gone.any():
-            counts = as_text(typed.loc[gone, "taxon_id"]).value_counts()
+            counts = typed.loc[gone, "taxon_id"].value_counts()
             examples = [f"{t} ({c})" for t, c in counts.head(10).items()]
             findings.drop("modern_occurrences", "taxon not marked extant", int(gone.sum()), examples)
             findings.warn(f"{file}: {int(gone.sum())} record(s) of {len(counts)} taxa not marked extant in the "

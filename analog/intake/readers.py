@@ -215,24 +215,35 @@ def _read_text(path: Path, label: str, findings: Findings, wanted, categorical, 
             out.parts, out.frame = [convert(empty, 0, delim)], None
         return out
 
-    def source():
+    def source():  # the records, after the header line
         if clean:
             f = pa.OSFile(str(path))
-            f.seek(skip)
+            f.seek(skip + len(header_bytes))
             return f
-        return io.BytesIO(text.encode("utf-8"))
+        data = text.encode("utf-8")
+        return io.BytesIO(data[data.find(b"\n") + 1:])
 
     import pyarrow as pa
 
+    def stream(quoting=True):
+        size = chunk_bytes
+        while True:
+            try:
+                return _arrow_csv(source(), delim, raw_names, keep, categorical, convert, size, quoting=quoting)
+            except pa.ArrowInvalid as exc:
+                # a record longer than a block: read again in larger blocks (results do not depend on it)
+                if "straddl" not in str(exc) or size > path.stat().st_size:
+                    raise
+                size *= 4
+
     try:
         try:
-            parts, n = _arrow_csv(source(), delim, raw_names, keep, categorical, convert, chunk_bytes)
+            parts, n = stream()
         except Exception:  # noqa: BLE001
             if delim != "\t":
                 raise
             # Darwin Core archives write tab-separated text without quoting: a '"' is just a character
-            parts, n = _arrow_csv(source(), delim, raw_names, keep, categorical, convert, chunk_bytes,
-                                  quoting=False)
+            parts, n = stream(quoting=False)
     except Exception as exc:  # noqa: BLE001 - any parser failure is a fault of the file
         lines = io.StringIO(text) if not clean else open(path, encoding="utf-8-sig", newline="")
         with lines:
@@ -315,7 +326,7 @@ def _arrow_csv(source, delim: str, raw_names: list[str], keep: list[str], catego
     kept = [first[r] for r in dict.fromkeys(keep)]
     types = {n: (pa.dictionary(pa.int32(), pa.string()) if raw_names[int(n[1:])].strip() in categorical
                  else pa.string()) for n in kept}
-    read = pcsv.ReadOptions(column_names=names, skip_rows=1, block_size=max(int(chunk_bytes), 1))
+    read = pcsv.ReadOptions(column_names=names, block_size=max(int(chunk_bytes), 1))
     convert_opts = pcsv.ConvertOptions(include_columns=kept, column_types=types,
                                        strings_can_be_null=False, quoted_strings_can_be_null=False)
     parse = (pcsv.ParseOptions(delimiter=delim, newlines_in_values=True) if quoting
