@@ -6,6 +6,7 @@ earlier output intact and no partial files; the inputs are never touched.
 """
 from __future__ import annotations
 
+import csv
 import io
 import json
 import os
@@ -29,29 +30,60 @@ LAYER_TIMESTAMP = "2000-01-01T00:00:00.000Z"   # fixed GeoPackage change time (s
 def frame_to_csv_bytes(frame: pd.DataFrame) -> bytes:
     """Deterministic CSV bytes: fixed float format, '\\n' line endings, UTF-8.
 
-    Float columns are formatted here, column by column, before pandas writes the frame:
-    the same text as ``to_csv(float_format=FLOAT_FORMAT)`` (``FLOAT_FORMAT % value``, an
-    empty field for NaN), without pandas' per-value formatter calls.
+    The text is that of ``frame.to_csv(index=False, float_format=FLOAT_FORMAT,
+    lineterminator="\\n")``. For the usual column types (NumPy numbers and booleans, strings,
+    nullable extension types, objects) the fields are made here column by column, as pandas
+    makes them, and written by the same :mod:`csv` writer pandas uses; anything else is left to
+    pandas.
     """
+    columns = _csv_fields(frame)
     buf = io.StringIO()
-    _preformat_floats(frame).to_csv(buf, index=False, float_format=FLOAT_FORMAT, lineterminator="\n")
+    if columns is None:
+        frame.to_csv(buf, index=False, float_format=FLOAT_FORMAT, lineterminator="\n")
+    else:
+        writer = csv.writer(buf, lineterminator="\n", delimiter=",", quoting=csv.QUOTE_MINIMAL,
+                            doublequote=True, escapechar=None, quotechar='"')
+        writer.writerow(list(frame.columns))
+        writer.writerows(zip(*columns))
     return buf.getvalue().encode("utf-8")
 
 
-def _preformat_floats(frame: pd.DataFrame) -> pd.DataFrame:
-    """A shallow copy of ``frame`` with its NumPy float columns replaced by their CSV text."""
+def _csv_fields(frame: pd.DataFrame) -> list[list] | None:
+    """Each column's CSV fields, as ``DataFrame.to_csv`` (na_rep '', float_format FLOAT_FORMAT,
+    minimal quoting) hands them to the csv writer; None for a frame this does not cover."""
     import numpy as np
+    from pandas.api.extensions import ExtensionArray
 
-    positions = [i for i, dtype in enumerate(frame.dtypes)
-                 if isinstance(dtype, np.dtype) and dtype.kind == "f"]
-    if not positions or not len(frame):
-        return frame
-    out = frame.copy(deep=False)
-    for i in positions:
-        values = frame.iloc[:, i].to_numpy()
-        text = np.array(list(map(FLOAT_FORMAT.__mod__, values.tolist())), dtype=object)
-        text[np.isnan(values)] = ""
-        out.isetitem(i, text)
+    if not len(frame.columns) or isinstance(frame.columns, pd.MultiIndex) \
+            or not all(isinstance(c, str) for c in frame.columns):
+        return None
+    out = []
+    for i in range(frame.shape[1]):
+        column = frame.iloc[:, i]
+        dtype = column.dtype
+        values = column.array
+        if isinstance(dtype, np.dtype):
+            values = column.to_numpy()
+            if dtype.kind == "f":
+                text = list(map(FLOAT_FORMAT.__mod__, values.tolist()))
+                for j in np.flatnonzero(np.isnan(values)).tolist():
+                    text[j] = ""
+                out.append(text)
+            elif dtype.kind in "iub":  # astype(str): str(int), 'True'/'False'
+                out.append(values.astype(str).tolist())
+            elif dtype.kind == "O":
+                fields = np.array(values, dtype=object)
+                fields[pd.isna(fields)] = ""
+                out.append(fields.tolist())
+            else:
+                return None
+        elif isinstance(values, ExtensionArray) and dtype.kind not in "fcmMV" \
+                and not isinstance(dtype, (pd.IntervalDtype, pd.SparseDtype, pd.CategoricalDtype, pd.PeriodDtype)):
+            fields = np.asarray(values.astype(object))
+            fields[np.asarray(values.isna())] = ""
+            out.append(fields.tolist())
+        else:
+            return None
     return out
 
 

@@ -49,6 +49,8 @@ def _missing(x: Any) -> bool:
 
 def _float(x: Any) -> float:
     """A float, or NaN for anything missing or not a number."""
+    if type(x) is float:  # the common case, NaN included
+        return x
     if _missing(x):
         return math.nan
     try:
@@ -219,18 +221,33 @@ class Table:
 # markup of table cells (autoescaped as in the templates; large tables are rendered here, not cell
 # by cell in jinja)
 # --------------------------------------------------------------------------------------------------
+_ESCAPES = str.maketrans({"&": "&amp;", "<": "&lt;", ">": "&gt;", '"': "&#34;", "'": "&#39;"})
+
+
 def _esc(value: Any) -> str:
-    return str(markupsafe.escape(value))
+    """``markupsafe.escape(value)`` as text (the same five entities), without building Markup objects."""
+    if hasattr(value, "__html__"):
+        return str(value.__html__())
+    return str(value).translate(_ESCAPES)
+
+
+def _taxon_markup(t: Taxon) -> str:
+    return f"<i>{_esc(t.name)}</i>" if t.italic else _esc(t.name)
+
+
+def _tier_chip_markup(tier: Tier) -> str:
+    return (f'<span class="tier" style="background-color: {_esc(tier.colour)}; color: {_esc(tier.ink)};">'
+            f'{_esc(tier.name)}</span>')
 
 
 def taxon_html(t: Taxon) -> markupsafe.Markup:
     """A taxon name, in italics from genus down."""
-    return markupsafe.Markup(f"<i>{_esc(t.name)}</i>" if t.italic else _esc(t.name))
+    return markupsafe.Markup(_taxon_markup(t))
 
 
 def tier_chip_html(tier: Tier) -> markupsafe.Markup:
-    return markupsafe.Markup(f'<span class="tier" style="background-color: {_esc(tier.colour)}; '
-                             f'color: {_esc(tier.ink)};">{_esc(tier.name)}</span>')
+    """A tier's name on its colour."""
+    return markupsafe.Markup(_tier_chip_markup(tier))
 
 
 def _cell_html(c: Cell) -> str:
@@ -238,9 +255,9 @@ def _cell_html(c: Cell) -> str:
     sort = "" if c.sort is None else f' data-sort="{_esc(c.sort)}"'
     title = f' title="{_esc(c.title)}"' if c.title else ""
     if c.kind == "taxon":
-        return f'<td class="taxon"{sort}>{taxon_html(c.taxon)}</td>\n'
+        return f'<td class="taxon"{sort}>{_taxon_markup(c.taxon)}</td>\n'
     if c.kind == "tier":
-        return f'<td data-sort="{_esc(c.sort)}">{tier_chip_html(c.tier)}</td>\n'
+        return f'<td data-sort="{_esc(c.sort)}">{_tier_chip_markup(c.tier)}</td>\n'
     if c.kind == "interval":
         bar = ""
         if c.bar:
@@ -532,32 +549,40 @@ def _ordered_rankings(rankings: pd.DataFrame) -> pd.DataFrame:
 
 
 class _RiskRows:
-    """The risk-table cells of every row of the rankings, rendered once, in combined-rank order.
+    """The risk-table cells of the rows of the rankings, in combined-rank order, each rendered once
+    (when first shown) and reused.
 
     The study-wide table and every region's tables show the same cells for a taxon (ranks, tiers
-    and scores are those of the whole study), so each row is rendered once and reused.
+    and scores are those of the whole study).
     """
 
     def __init__(self, r: _Run, rankings: pd.DataFrame):
-        ilabel = _interval_label(r)
-        self.columns = _risk_columns(ilabel)
+        self.r = r
+        self.ilabel = _interval_label(r)
+        self.columns = _risk_columns(self.ilabel)
         self.ordered = _ordered_rankings(rankings)
-        self.cells: list[list[str]] = []   # per row: the <td> markup of each column, each followed by a blank line
-        self.assessed: list[bool] = []     # has a tier (rows without one are left out of the top tables)
-        for row in self.ordered.to_dict("records"):
-            cells = _risk_cells(r, row, ilabel)
-            self.cells.append([_cell_html(c) + "\n" for c in cells])
-            self.assessed.append(cells[2].tier is not NOT_ASSESSED)
-        self._joined: list[str] | None = None
+        self.records = self.ordered.to_dict("records")
+        # has a tier (rows without one are left out of the top tables)
+        self.assessed = [_tier(row.get("tier")) is not NOT_ASSESSED for row in self.records]
+        self._cells: list[list[str] | None] = [None] * len(self.records)
+        self._joined: list[str | None] = [None] * len(self.records)
 
     def __len__(self) -> int:
-        return len(self.cells)
+        return len(self.records)
+
+    def cells(self, i: int) -> list[str]:
+        """The <td> markup of each column of row ``i``, each followed by a blank line."""
+        cells = self._cells[i]
+        if cells is None:
+            cells = self._cells[i] = [_cell_html(c) + "\n" for c in _risk_cells(self.r, self.records[i], self.ilabel)]
+        return cells
 
     def row(self, i: int) -> str:
         """Every cell of row ``i``."""
-        if self._joined is None:
-            self._joined = ["".join(cells) for cells in self.cells]
-        return self._joined[i]
+        joined = self._joined[i]
+        if joined is None:
+            joined = self._joined[i] = "".join(self.cells(i))
+        return joined
 
     def table(self, *, table_id: str, caption: str, limit: int, note: str = "") -> Table:
         """The first ``limit`` rows as a sortable table."""
@@ -566,7 +591,7 @@ class _RiskRows:
 
 
 MAX_RANKING_ROWS = 2000  # rows of the study-wide ranked table in briefing.html; rankings.csv has every taxon
-MAX_REGION_ROWS = 500    # rows of a region page's table of taxa; region_taxa.csv has every taxon recorded
+MAX_REGION_ROWS = 250    # rows of a region page's table of taxa; region_taxa.csv has every taxon recorded
 TOP_REGION_ROWS = 10     # most vulnerable taxa per region in briefing.html
 
 
@@ -885,7 +910,15 @@ def _region_slices(presence: pd.DataFrame, risk: _RiskRows) -> dict[str, tuple[n
     return out
 
 
+@functools.lru_cache(maxsize=4096)
+def _count_cell(v: int) -> str:
+    return _cell_html(Cell(fmt_int(v), sort_key(v), "num")) + "\n"
+
+
 def _records_cell(v: Any) -> str:
+    """The 'Records here' cell (record counts repeat: whole numbers are rendered once each)."""
+    if type(v) is int:
+        return _count_cell(v)
     return _cell_html(Cell(fmt_int(v), sort_key(v), "num")) + "\n"
 
 
@@ -910,7 +943,7 @@ def _region_tables(risk: _RiskRows, rows: np.ndarray, records: np.ndarray, *, sl
         if len(top_rows) == TOP_REGION_ROWS:
             break
         if risk.assessed[i]:
-            cells = risk.cells[i]
+            cells = risk.cells(i)
             top_rows.append("".join(cells[k] for k in keep) + _records_cell(v))
     top = Table(f"top-{slug}", f"Most vulnerable taxa recorded in {name} (first {len(top_rows)})",
                 [columns[k] for k in keep + [8]], top_rows, sortable=False)
