@@ -354,3 +354,50 @@ def test_real_region_inset_when_available(synthetic_run):
         assert len(img) == 1 and img[0]["src"].startswith("data:image/png;base64,")
         png = base64.b64decode(img[0]["src"].split(",", 1)[1])
         assert png[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_long_tables_are_capped_with_a_pointer_to_the_csv(synthetic_run, monkeypatch):
+    """Above the caps the HTML shows the first rows in combined-rank order and says where the rest are;
+    below them (the synthetic run as is) every taxon is listed, as before."""
+    from analog.briefing import render
+
+    full = build_briefing(synthetic_run, figures={}, draw_insets=False)
+    assert len(scan(full["briefing.html"]).tables["table-ranking"]) == 1 + 8
+    assert "rankings.csv lists" not in full["briefing.html"]
+
+    monkeypatch.setattr(render, "MAX_RANKING_ROWS", 3)
+    monkeypatch.setattr(render, "MAX_REGION_ROWS", 2)
+    pages = build_briefing(synthetic_run, figures={}, draw_insets=False)
+    html = pages["briefing.html"]
+    rows = scan(html).tables["table-ranking"][1:]
+    assert [r[0]["text"].strip() for r in rows] == ["1", "2", "3"]
+    assert [r[1]["text"].strip() for r in rows] == ["Alpha marina", ODD_TAXON, "Gamma profunda"]
+    assert "The 3 most vulnerable of the 8 living taxa in the study" in html
+    assert "sorting reorders these rows only. rankings.csv in the same output folder lists all 8 taxa" in html
+    assert "unranked, at the end of rankings.csv" in html   # the taxon without evidence is not in the table
+    assert "with the 2 most vulnerable of the 3 taxa recorded there" in html   # Northern Shelf (3 recorded)
+    assert "with all 2 taxa recorded there" in html                           # the odd region (2 recorded)
+
+    region = pages["regions/R1.html"]
+    rows = scan(region).tables["table-taxa-R1"][1:]
+    assert [(r[1]["text"].strip(), r[-1]["text"].strip()) for r in rows] == [("Alpha marina", "40"),
+                                                                                (ODD_TAXON, "12")]
+    assert "The 2 most vulnerable of the 3 living taxa recorded in Northern Shelf" in region
+    assert "region_taxa.csv in the output folder lists every taxon recorded in each region" in region
+    # the briefing's top table is not capped by the region page's limit
+    top = scan(html).tables["table-top-R1"][1:]
+    assert [r[1]["text"].strip() for r in top] == ["Alpha marina", ODD_TAXON]   # Theta ignota has no tier
+
+
+def test_table_cells_escape_like_the_templates():
+    """Cells rendered in Python escape as jinja's autoescape (markupsafe) does."""
+    import markupsafe
+
+    from analog.briefing.render import Cell, Taxon, _cell_html
+
+    odd = "<b>\"Q\" & 'A'</b>"
+    html = _cell_html(Cell(odd, odd, "num", title=odd))
+    esc = str(markupsafe.escape(odd))
+    assert html == f'<td class="num" data-sort="{esc}" title="{esc}">{esc}</td>\n'
+    taxon = _cell_html(Cell(odd, None, "taxon", taxon=Taxon("t", odd, True)))
+    assert taxon == f'<td class="taxon"><i>{esc}</i></td>\n'
