@@ -389,22 +389,24 @@ def _pairwise_matches_numpy() -> bool:
     return _PAIRWISE_OK[0]
 
 
-def _asym_sums(tn, y, c):
+def _asym_sums(tn, y, c, buf=None):
     """Sums that the fit at peak times ``c`` needs, for every series and candidate at once.
 
     The arrays are transposed: positions along axis 0, series along the last axis.
     ``tn`` (width, series) holds the observation times with NaN at unused positions,
-    ``y`` the values with 0 there; ``c`` is (candidates, series). Returns ``(sl, ql,
-    yl, sr, qr, yr)``, each (candidates, series): with ``d = (t − c)²``, the sums of
-    ``d``, ``d²`` and ``d y`` over the observations left of the peak (``t < c``), and
-    the same sums over the whole series minus the left part.
+    ``y`` the values with 0 there; ``c`` is (candidates, series); ``buf``, if given, is
+    scratch space, used when its shape is (6, width, candidates, series). Returns an array (3, 2,
+    candidates, series): with ``d = (t − c)²``, the sums of ``d``, ``d²`` and ``d y``
+    (first axis) over the observations left of the peak (``t < c``) in ``[:, 0]``, and
+    the same sums over the whole series minus the left part in ``[:, 1]``.
 
     Each element equals the one ``(t − c)² · mask · [t < c]`` gives (``fmin(t − c, 0)²``
     is ``(t − c)²`` left of the peak and 0 elsewhere; ``fmax`` turns the NaN of unused
     positions into 0), and every sum is added in the order ``ndarray.sum(axis=1)`` uses
     for an untransposed row of the batch's width (see :func:`_pairwise_sum`).
     """
-    w = np.empty((6, tn.shape[0]) + c.shape)
+    shape = (6, tn.shape[0]) + c.shape
+    w = buf if buf is not None and buf.shape == shape else np.empty(shape)
     dl, d2 = w[0], w[3]
     np.subtract(tn[:, None, :], c[None], out=d2)
     np.fmin(d2, 0.0, out=dl)
@@ -415,47 +417,51 @@ def _asym_sums(tn, y, c):
     np.multiply(dl, y[:, None, :], out=w[2])
     np.multiply(d2, d2, out=w[4])
     np.multiply(d2, y[:, None, :], out=w[5])
-    sl, ql, yl, s2, q2, y2 = _pairwise_sum(np.moveaxis(w, 0, 1))
-    return sl, ql, yl, s2 - sl, q2 - ql, y2 - yl
+    total = _pairwise_sum(np.moveaxis(w, 0, 1))
+    out = np.empty((3, 2) + c.shape)
+    out[:, 0] = total[:3]
+    np.subtract(total[3:], total[:3], out=out[:, 1])
+    return out
 
 
-def _asym_rss(tn, y, third, n_obs, yy, ysum, flat, c):
+def _asym_rss(tn, y, third, n_obs, yy, ysum, flat, c, buf=None):
     """Least RSS of the peaked curve at fixed peak times ``c`` (candidates, series).
 
     The same numbers as :func:`_asym_eval` (up to the sign of a zero), with the terms
-    that vanish in the one-sided and flat subsets left out: ``flat`` is the RSS of the
-    flat fit, which does not depend on ``c``; ``third`` holds each series' third
-    smallest and third largest conditioned time, so that "at least ``_MIN_SIDE``
-    observations left of (right of) ``c``" is ``c > third[0]`` (``c <= third[1]``).
+    that vanish in the one-sided and flat subsets left out, and the left and right
+    sides held together in arrays of two rows. ``flat`` is the RSS of the flat fit,
+    which does not depend on ``c`` (NaN where it is not finite); ``third`` holds each
+    series' third smallest and third largest conditioned time, so that "at least
+    ``_MIN_SIDE`` observations left of (right of) ``c``" is ``c > third[0]``
+    (``c <= third[1]``).
     """
-    sl, ql, yl, sr, qr, yr = _asym_sums(tn, y, c)
+    side = _asym_sums(tn, y, c, buf)
+    s, q, ys = side                                           # each (left, right) x candidates x series
+    enough = np.empty(s.shape, dtype=bool)
+    np.greater(c, third[0], out=enough[0])
+    np.less_equal(c, third[1], out=enough[1])
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         # a side bends only with enough points on it; otherwise one point would be fitted exactly
-        gl = np.where((ql > 0) & (c > third[0]), 1.0 / ql, 0.0)
-        gr = np.where((qr > 0) & (c <= third[1]), 1.0 / qr, 0.0)
-        pl, pr = sl * sl * gl, sr * sr * gr
-        ql_, qr_ = sl * yl * gl, sr * yr * gr
-        best = np.full(c.shape, np.inf)
+        g = np.where((q > 0) & enough, 1.0 / q, 0.0)
+        ssg = s * s * g
+        syg = s * ys * g
         # both sides bent
-        den = n_obs - pl - pr
-        a0 = (ysum - ql_ - qr_) / np.where(den > 1e-12, den, np.nan)
-        bl, br = (sl * a0 - yl) * gl, (sr * a0 - yr) * gr
-        rss = yy - a0 * ysum + bl * yl + br * yr
-        best = np.where((bl >= 0) & (br >= 0) & np.isfinite(rss) & (rss < best - 1e-12), rss, best)
-        # rise only
-        den = n_obs - pl
-        a0 = (ysum - ql_) / np.where(den > 1e-12, den, np.nan)
-        bl = (sl * a0 - yl) * gl
-        rss = yy - a0 * ysum + bl * yl
-        best = np.where((bl >= 0) & np.isfinite(rss) & (rss < best - 1e-12), rss, best)
-        # fall only
-        den = n_obs - pr
-        a0 = (ysum - qr_) / np.where(den > 1e-12, den, np.nan)
-        br = (sr * a0 - yr) * gr
-        rss = yy - a0 * ysum + br * yr
-        best = np.where((br >= 0) & np.isfinite(rss) & (rss < best - 1e-12), rss, best)
+        den = n_obs - ssg[0] - ssg[1]
+        a0 = (ysum - syg[0] - syg[1]) / np.where(den > 1e-12, den, np.nan)
+        b = (s * a0 - ys) * g
+        rss = yy - a0 * ysum + b[0] * ys[0] + b[1] * ys[1]
+        ok = b >= 0
+        best = np.where(ok[0] & ok[1] & np.isfinite(rss), rss, np.inf)
+        # rise only, then fall only
+        den = n_obs - ssg
+        a0 = (ysum - syg) / np.where(den > 1e-12, den, np.nan)
+        b = (s * a0 - ys) * g
+        rss = yy - a0 * ysum + b * ys
+        ok = (b >= 0) & np.isfinite(rss)
+        for k in (0, 1):
+            best = np.where(ok[k] & (rss[k] < best - 1e-12), rss[k], best)
         # flat
-        best = np.where(np.isfinite(flat) & (flat < best - 1e-12), flat, best)
+        best = np.where(flat < best - 1e-12, flat, best)
     return np.maximum(best, 0.0)
 
 
@@ -469,7 +475,7 @@ def _asym_eval(tn, y, third, n_obs, yy, ysum, c):
     A side with fewer than ``_MIN_SIDE`` observations stays flat (curvature 0).
     Returns ``(rss, a, b_rise, b_fall)``, each (candidates, series).
     """
-    sl, ql, yl, sr, qr, yr = _asym_sums(tn, y, c)
+    (sl, sr), (ql, qr), (yl, yr) = _asym_sums(tn, y, c)
     zero = np.zeros(c.shape)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         gl = np.where((ql > 0) & (c > third[0]), 1.0 / ql, 0.0)
@@ -502,9 +508,11 @@ def _asym_search(tn, y, third, n_obs, yy, ysum, lo, hi):
     cols = np.arange(n)
     with np.errstate(invalid="ignore", over="ignore"):
         flat = yy - ysum / n_obs * ysum
+    flat = np.where(np.isfinite(flat), flat, np.nan)    # a non-finite flat fit is never taken
+    buf = np.empty((6, width, 1, n))
 
     def f(c):
-        return _asym_rss(tn, y, third, n_obs, yy, ysum, flat, c)
+        return _asym_rss(tn, y, third, n_obs, yy, ysum, flat, c, buf)
 
     grid = (lo[:, None] + (hi - lo)[:, None] * np.linspace(0.0, 1.0, _PEAK_GRID)[None, :]).T
     per = max(1, _SUM_BLOCK // max(6 * n * width, 1))        # grid points summed at once
@@ -549,9 +557,10 @@ def _fit_rise_fall_asym(batch: SeriesBatch):
     _, _, lo, hi = _center_scale(batch)
     n, width = t.shape
     # third smallest and third largest conditioned time (+inf / -inf when there are fewer)
-    pad = np.full((n, _MIN_SIDE), np.inf)
-    third = np.stack([np.sort(np.hstack([np.where(m, t, np.inf), pad]), axis=1)[:, _MIN_SIDE - 1],
-                      -np.sort(np.hstack([np.where(m, -t, np.inf), pad]), axis=1)[:, _MIN_SIDE - 1]])
+    third = np.stack([np.full(n, np.inf), np.full(n, -np.inf)])
+    if width >= _MIN_SIDE:
+        third[0] = np.partition(np.where(m, t, np.inf), _MIN_SIDE - 1, axis=1)[:, _MIN_SIDE - 1]
+        third[1] = -np.partition(np.where(m, -t, np.inf), _MIN_SIDE - 1, axis=1)[:, _MIN_SIDE - 1]
     tn = np.where(m, t, np.nan)
     c, rss, a0, bl, br = (np.empty(n) for _ in range(5))
     size = max(1, _SEARCH_BLOCK // max(width, 1))
