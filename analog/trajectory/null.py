@@ -122,7 +122,12 @@ def noise_null(series: pd.DataFrame, ends_in: pd.Series, *, scale: str = "logit"
             paths = paths[:, 1:-1]  # the n interior points, like an observed series
         null_by_len[int(length)] = hat_shape(paths, baseline=baseline)[list(STATISTICS)].to_numpy()
 
-    groups = np.array(["ends_in_interval" if ends_in.get(k, "") else "completed" for k in keys])
+    if ends_in.index.is_unique:
+        ends = np.array(ends_in.reindex(keys).to_numpy(dtype=object), dtype=object)
+        ends[pd.isna(ends)] = ""
+    else:
+        ends = np.array([ends_in.get(k, "") for k in keys], dtype=object)
+    groups = np.where([bool(e) for e in ends], "ends_in_interval", "completed")
     rows = []
     for j, stat in enumerate(STATISTICS):
         obs = observed[stat].to_numpy()
@@ -150,7 +155,7 @@ def noise_null(series: pd.DataFrame, ends_in: pd.Series, *, scale: str = "logit"
             "null_mean": null_mean, "null_low": lo, "null_high": hi, "percentile": pct,
             "p_value": np.where(np.isnan(obs), np.nan, p), "test": "percentile in length-matched excursions",
             "test_statistic": np.nan, "test_p_value": np.nan, "n_taxa": 1, "n_bins": n,
-            "interval_id": [ends_in.get(k, "") for k in keys]}))
+            "interval_id": ends}))
     taxon_rows = pd.concat(rows, ignore_index=True)
     taxon_rows["_o"] = np.tile(np.arange(len(keys)), len(STATISTICS))
     taxon_rows["_s"] = np.repeat(np.arange(len(STATISTICS)), len(keys))
@@ -172,8 +177,8 @@ def noise_null(series: pd.DataFrame, ends_in: pd.Series, *, scale: str = "logit"
             # null of the mean over taxa: one length-matched excursion per taxon, repeated
             total = np.zeros(n_rep)
             for L, count in zip(*np.unique(lens, return_counts=True)):
-                col = null_by_len[int(L)][:, j]
-                total += np.nan_to_num(col[rng.integers(0, n_null, (n_rep, count))]).sum(axis=1)
+                col = np.nan_to_num(null_by_len[int(L)][:, j])
+                total += col[rng.integers(0, n_null, (n_rep, count))].sum(axis=1)
             null_means = total / len(lens)
             obs_mean = float(obs[ok].mean())
             lo, hi = np.quantile(null_means, [alpha, 1.0 - alpha])
