@@ -10,6 +10,7 @@ import csv
 import io
 import json
 import os
+import re
 import shutil
 import signal
 import tempfile
@@ -33,24 +34,37 @@ def frame_to_csv_bytes(frame: pd.DataFrame) -> bytes:
     The text is that of ``frame.to_csv(index=False, float_format=FLOAT_FORMAT,
     lineterminator="\\n")``. For the usual column types (NumPy numbers and booleans, strings,
     nullable extension types, objects) the fields are made here column by column, as pandas
-    makes them, and written by the same :mod:`csv` writer pandas uses; anything else is left to
-    pandas.
+    makes them; when no field needs quoting (and there are two columns or more) the lines are
+    joined directly, otherwise the same :mod:`csv` writer as pandas' writes them. Anything else
+    is left to pandas.
     """
-    columns = _csv_fields(frame)
+    made = _csv_fields(frame)
     buf = io.StringIO()
-    if columns is None:
+    if made is None:
         frame.to_csv(buf, index=False, float_format=FLOAT_FORMAT, lineterminator="\n")
-    else:
-        writer = csv.writer(buf, lineterminator="\n", delimiter=",", quoting=csv.QUOTE_MINIMAL,
-                            doublequote=True, escapechar=None, quotechar='"')
-        writer.writerow(list(frame.columns))
-        writer.writerows(zip(*columns))
+        return buf.getvalue().encode("utf-8")
+    columns, plain = made
+    header = list(frame.columns)
+    if plain and len(columns) > 1 and not any(_NEEDS_QUOTES.search(h) for h in header):
+        # minimal quoting quotes a field only for a delimiter, quote character or line break in it
+        # (or an empty field alone on its line), so without those the writer's output is the fields
+        # joined by commas, one line per row
+        rows = "\n".join(map(",".join, zip(*columns)))
+        return (",".join(header) + "\n" + rows + ("\n" if rows or columns[0] else "")).encode("utf-8")
+    writer = csv.writer(buf, lineterminator="\n", delimiter=",", quoting=csv.QUOTE_MINIMAL,
+                        doublequote=True, escapechar=None, quotechar='"')
+    writer.writerow(header)
+    writer.writerows(zip(*columns))
     return buf.getvalue().encode("utf-8")
 
 
-def _csv_fields(frame: pd.DataFrame) -> list[list] | None:
+_NEEDS_QUOTES = re.compile(r'[,"\r\n]')
+
+
+def _csv_fields(frame: pd.DataFrame) -> tuple[list[list], bool] | None:
     """Each column's CSV fields, as ``DataFrame.to_csv`` (na_rep '', float_format FLOAT_FORMAT,
-    minimal quoting) hands them to the csv writer; None for a frame this does not cover."""
+    minimal quoting) hands them to the csv writer, and whether every field is a str the writer
+    would write unquoted; None for a frame this does not cover."""
     import numpy as np
     from pandas.api.extensions import ExtensionArray
 
@@ -58,6 +72,7 @@ def _csv_fields(frame: pd.DataFrame) -> list[list] | None:
             or not all(isinstance(c, str) for c in frame.columns):
         return None
     out = []
+    plain = True
     for i in range(frame.shape[1]):
         column = frame.iloc[:, i]
         dtype = column.dtype
@@ -65,26 +80,59 @@ def _csv_fields(frame: pd.DataFrame) -> list[list] | None:
         if isinstance(dtype, np.dtype):
             values = column.to_numpy()
             if dtype.kind == "f":
-                text = list(map(FLOAT_FORMAT.__mod__, values.tolist()))
-                for j in np.flatnonzero(np.isnan(values)).tolist():
-                    text[j] = ""
-                out.append(text)
-            elif dtype.kind in "iub":  # astype(str): str(int), 'True'/'False'
-                out.append(values.astype(str).tolist())
+                out.append(_float_fields(values))
+            elif dtype.kind in "iub":  # as pandas: the Python int or bool, written with str()
+                out.append(list(map(str, values.tolist())))
             elif dtype.kind == "O":
                 fields = np.array(values, dtype=object)
                 fields[pd.isna(fields)] = ""
-                out.append(fields.tolist())
+                fields = fields.tolist()
+                plain = plain and _plain_text(fields)
+                out.append(fields)
             else:
                 return None
         elif isinstance(values, ExtensionArray) and dtype.kind not in "fcmMV" \
                 and not isinstance(dtype, (pd.IntervalDtype, pd.SparseDtype, pd.CategoricalDtype, pd.PeriodDtype)):
             fields = np.asarray(values.astype(object))
-            fields[np.asarray(values.isna())] = ""
-            out.append(fields.tolist())
+            missing = np.asarray(values.isna())
+            fields[missing] = ""
+            fields = fields.tolist()
+            if dtype.kind in "iub":  # nullable integers and booleans: the writer's str() of each value
+                for j in np.flatnonzero(~missing).tolist():
+                    fields[j] = str(fields[j])
+            elif plain:
+                if isinstance(dtype, pd.StringDtype):
+                    plain = not column.str.contains(_NEEDS_QUOTES.pattern, regex=True, na=False).any()
+                else:
+                    plain = _plain_text(fields)
+            out.append(fields)
         else:
             return None
-    return out
+    return out, plain
+
+
+def _plain_text(fields: list) -> bool:
+    """Every field a str that minimal quoting leaves as it is."""
+    return all(type(f) is str for f in fields) and not any(_NEEDS_QUOTES.search(f) for f in fields)
+
+
+def _float_fields(values) -> list[str]:
+    """``FLOAT_FORMAT % value`` per value, '' for NaN. Columns with many repeated values (bins,
+    counts, coordinates of shared sites) format each distinct bit pattern once."""
+    import numpy as np
+
+    values = np.ascontiguousarray(values)
+    if values.itemsize in (2, 4, 8) and len(values) > 1000:
+        codes, distinct = pd.factorize(values.view(f"i{values.itemsize}"))  # equal bits, equal text
+        if len(distinct) <= len(values) // 2:
+            floats = distinct.view(values.dtype)
+            text = np.array(list(map(FLOAT_FORMAT.__mod__, floats.tolist())), dtype=object)
+            text[np.isnan(floats)] = ""
+            return text[codes].tolist()
+    text = list(map(FLOAT_FORMAT.__mod__, values.tolist()))
+    for j in np.flatnonzero(np.isnan(values)).tolist():
+        text[j] = ""
+    return text
 
 
 def check_output_target(out: Path) -> None:

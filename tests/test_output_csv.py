@@ -39,12 +39,36 @@ def _awkward(n: int = 7) -> pd.DataFrame:
     })
 
 
-@pytest.mark.parametrize("case", ["awkward", "no rows", "one column", "repeated names", "categorical",
-                                  "float extension", "dates", "no columns", "number labels"])
+def _plain(n: int = 3000) -> pd.DataFrame:
+    """Fields no writer quotes (the usual output tables), with repeated floats and empty fields."""
+    rng = np.random.default_rng(5)
+    f = np.round(rng.uniform(-40, 40, n), 2)
+    f[::7] = np.nan
+    return pd.DataFrame({
+        "id": pd.array([f"T{i:05d}" for i in range(n)], dtype="str"),
+        "name": pd.array([None if i % 9 == 0 else f"Name {i % 50}" for i in range(n)], dtype="str"),
+        "x": f, "y": rng.normal(0, 1, n), "k": rng.integers(0, 5, n), "ok": rng.random(n) < 0.5,
+        "I": pd.array([None if i % 4 == 0 else i for i in range(n)], dtype="Int64"),
+        "o": np.array([None if i % 3 == 0 else "tier" for i in range(n)], dtype=object),
+        "empty": pd.array([None] * n, dtype="str"),
+    })
+
+
+@pytest.mark.parametrize("case", ["awkward", "plain", "plain, empty rows", "plain, no rows", "plain, object ints",
+                                  "plain, comma in a name", "plain, comma in a header", "no rows", "one column",
+                                  "repeated names", "categorical", "float extension", "dates", "no columns",
+                                  "number labels"])
 def test_same_bytes_as_pandas_to_csv(case):
     frame = _awkward()
+    plain = _plain()
     frame = {
         "awkward": frame,
+        "plain": plain,
+        "plain, empty rows": plain[["name", "empty"]],
+        "plain, no rows": plain.iloc[:0],
+        "plain, object ints": plain.assign(o=np.array([1, None, 2.5] * 1000, dtype=object)),
+        "plain, comma in a name": plain.assign(name=plain["name"].where(plain.index != 5, "a,b")),
+        "plain, comma in a header": plain.rename(columns={"x": "x,y"}),
         "no rows": frame.iloc[:0],
         "one column": pd.DataFrame({"a": ["", None, "x", ""]}),
         "repeated names": pd.DataFrame([[1.5, "a", 2]], columns=["x", "x", "y"]),
@@ -56,3 +80,12 @@ def test_same_bytes_as_pandas_to_csv(case):
         "number labels": pd.DataFrame({0: [1.5, np.nan], 1: ["a", "b"]}),
     }[case]
     assert frame_to_csv_bytes(frame) == _pandas(frame)
+
+
+def test_both_writing_paths_are_compared_above():
+    """The cases above cover the joined lines (no field needs quotes) and the csv writer."""
+    from analog.output import _csv_fields
+
+    assert _csv_fields(_plain())[1] is True
+    assert _csv_fields(_plain().assign(name="a,b"))[1] is False
+    assert _csv_fields(_awkward())[1] is False
