@@ -8,6 +8,7 @@ import geopandas as gpd
 import pandas as pd
 import pytest
 from shapely.geometry import Polygon
+from study_files import StudyFiles
 
 # Invented taxa of an invented fauna.
 TAXA = pd.DataFrame({
@@ -69,37 +70,7 @@ CONFIG = {
 }
 
 
-def _toml_value(v) -> str:
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, (int, float)):
-        return repr(v)
-    if isinstance(v, str):
-        return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
-    if isinstance(v, (list, tuple)):
-        return "[" + ", ".join(_toml_value(x) for x in v) + "]"
-    raise TypeError(type(v))
-
-
-def to_toml(config: dict) -> str:
-    """Minimal TOML writer for the nested dicts used in these tests."""
-    lines = []
-
-    def table(prefix, d):
-        scalars = {k: v for k, v in d.items() if not isinstance(v, dict)}
-        subs = {k: v for k, v in d.items() if isinstance(v, dict)}
-        if prefix and (scalars or not subs):
-            lines.append(f"[{prefix}]")
-        for k, v in scalars.items():
-            lines.append(f"{k} = {_toml_value(v)}")
-        for k, v in subs.items():
-            table(f"{prefix}.{k}" if prefix else k, v)
-
-    table("", config)
-    return "\n".join(lines) + "\n"
-
-
-class StudyBuilder:
+class StudyBuilder(StudyFiles):
     """Holds the tables and config of a tiny study; ``write()`` puts them in a folder."""
 
     def __init__(self, folder: Path):
@@ -111,28 +82,6 @@ class StudyBuilder:
         self.config = copy.deepcopy(CONFIG)
         self.sep = ","
         self.encoding = "utf-8"
-
-    def write(self) -> Path:
-        self.folder.mkdir(parents=True, exist_ok=True)
-        inputs = self.config.get("inputs", {})
-        for key, df in (("taxa", self.taxa), ("fossil_occurrences", self.fossils),
-                        ("modern_occurrences", self.modern)):
-            name = inputs.get(key)
-            if name is None or df is None:
-                continue
-            path = self.folder / name
-            if path.suffix == ".parquet":
-                df.to_parquet(path, index=False)
-            else:
-                df.to_csv(path, index=False, sep=self.sep, encoding=self.encoding)
-        if self.regions is not None and "regions" in inputs:
-            path = self.folder / inputs["regions"]
-            if path.suffix == ".parquet":
-                self.regions.to_parquet(path)
-            else:
-                self.regions.to_file(path, engine="pyogrio")
-        (self.folder / "study.toml").write_text(to_toml(self.config), encoding="utf-8")
-        return self.folder
 
 
 @pytest.fixture
