@@ -1733,6 +1733,11 @@ def build_briefing(run: Any, *, figures: Mapping[str, Mapping[str, bytes]] | Non
     than the PNG, else the PNG, downsampled beyond ``EMBED_MAX_PX`` pixels wide), CSS and the small
     sorting script are inline, and a Content-Security-Policy forbids fetching anything. Region file names are the region ids
     with characters outside ``A-Z a-z 0-9 . _ -`` replaced by ``_`` (see :func:`region_page_name`).
+
+    Long tables are cut, in combined-rank order, with a sentence saying so: the study-wide ranked
+    table at ``MAX_RANKING_ROWS`` taxa (rankings.csv has all of them) and each region page's table
+    at ``MAX_REGION_ROWS`` taxa (region_taxa.csv has every taxon recorded in each region). Sorting
+    a cut table reorders the rows shown.
     """
     r = _Run(run, figures)
     if draw_insets is None:
