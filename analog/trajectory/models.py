@@ -329,7 +329,7 @@ def _fit_rise_fall(batch: SeriesBatch):
     return ll, params
 
 
-_SEARCH_BLOCK = 1 << 16   # series x width searched together (bounds the peak search's working arrays)
+_SEARCH_BLOCK = 1 << 17   # series x width searched together (bounds the peak search's working arrays)
 _SUM_BLOCK = 1 << 18      # candidates x series x width summed together
 
 
