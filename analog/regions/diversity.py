@@ -172,13 +172,13 @@ def _loss_regions(regions, below, present, logps, exps, lengths, outs) -> None:
         one = (count == 1) & (per_branch.data[np.minimum(first, max(per_branch.nnz - 1, 0))] == 1.0)
         single = np.flatnonzero(one)
         multi = np.flatnonzero(~one)
-        single_taxon = idx[per_branch.indices[first[single]]]
+        source = np.zeros(len(branches), dtype=np.int64)   # each lone taxon's row of the shared exponentials
+        source[single] = idx[per_branch.indices[first[single]]]
         several = per_branch[multi]
         weights = lengths[branches]
         for out, logp, e in zip(outs, logps, exps):
             # log of a branch's loss probability: 0 + 1 * log p of a lone taxon is log p itself
-            prob = np.empty((len(branches), logp.shape[1]))
-            prob[single] = e[single_taxon]
+            prob = e.take(source, axis=0)
             prob[multi] = np.exp(several @ logp[idx])
             out[k] = weights @ prob
 
