@@ -11,7 +11,7 @@ from scipy.special import expit
 
 from ..errors import AnalogWarning
 from ..study import Study
-from ._blas import one_blas_thread
+from .._blas import one_blas_thread
 from .fates import compute_fates
 from .matching import match_relatives
 from .params import AnalogParams
@@ -157,7 +157,7 @@ def run_analog(study: Study, params: AnalogParams | None = None, *, rng: np.rand
     Counts (``n_at_risk``, ``n_lost``) are averages over age draws; on ``'pooled'`` rows
     they are sums over the intervals used (taxon-interval pairs).
 
-    OpenBLAS is held to one thread while the stage runs (:mod:`analog.analogs._blas`): the
+    OpenBLAS is held to one thread while the stage runs (:mod:`analog._blas`): the
     fits multiply skinny matrices, where threads only wait on each other, and a threaded
     product would make the last bits of the estimates depend on the machine's core count.
 

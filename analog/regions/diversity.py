@@ -5,6 +5,7 @@ import networkx as nx
 import numpy as np
 import scipy.sparse as sp
 
+from .._blas import one_blas_thread
 from ..engine import engine_scope, split_counts
 
 __all__ = ["branch_incidence", "expected_diversity_loss"]
@@ -139,22 +140,9 @@ def _loss_block(block, shared) -> list[np.ndarray]:
     below, present, logps, exps, lengths = shared
     start, stop = block
     outs = [np.zeros((stop - start, logp.shape[1])) for logp in logps]
-    with _one_blas_thread():
+    with one_blas_thread():  # small products: threads cost more than they save (analog._blas)
         _loss_regions(range(start, stop), below, present, logps, exps, lengths, outs)
     return outs
-
-
-def _one_blas_thread():
-    """Limit BLAS to one thread: each region's products are small, and waking BLAS threads for
-    them costs more than it saves (many times more on a busy machine). The products give the same
-    numbers with one thread as with several (tests/regions/test_regions_diversity.py checks it
-    against the straightforward computation run with the default threads)."""
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:  # threadpoolctl comes with scikit-learn (a dependency of mapclassify)
-        from contextlib import nullcontext
-        return nullcontext()
-    return threadpool_limits(1, user_api="blas")
 
 
 def _loss_regions(regions, below, present, logps, exps, lengths, outs) -> None:
