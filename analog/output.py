@@ -252,8 +252,14 @@ class OutputFolder:
         self.target = Path(target).resolve()
         check_output_target(self.target)
         self.target.parent.mkdir(parents=True, exist_ok=True)
-        with _signals_held():  # the temporary folder exists only once the caller can clean it up
-            self.tmp = Path(tempfile.mkdtemp(prefix=f".{self.target.name}.partial-", dir=self.target.parent))
+        self.tmp: Path | None = None
+        try:
+            with _signals_held():  # a signal that came while the folder was made is delivered on leaving
+                self.tmp = Path(tempfile.mkdtemp(prefix=f".{self.target.name}.partial-", dir=self.target.parent))
+        except BaseException:
+            if self.tmp is not None:  # no caller holds this object yet: clean up here
+                shutil.rmtree(self.tmp, ignore_errors=True)
+            raise
         self.written: list[str] = []
 
     # -- writing -------------------------------------------------------------------------------

@@ -39,6 +39,48 @@ def test_failure_midway_leaves_earlier_output_and_no_partial_files(tmp_path):
     assert [p.name for p in tmp_path.iterdir()] == ["out"]
 
 
+@pytest.mark.parametrize("during", ["making the temporary folder", "the swap"])
+def test_signal_while_signals_are_held_is_delivered_after_and_leaves_no_trace(tmp_path, monkeypatch, during):
+    """A SIGTERM that arrives while the folder is made or swapped lands on leaving the held section."""
+    import signal
+    import tempfile
+
+    import analog.output as output
+
+    def raise_interrupt(signum, frame):
+        raise KeyboardInterrupt
+    old = signal.signal(signal.SIGTERM, raise_interrupt)
+    out = tmp_path / "out"
+    try:
+        if during == "the swap":
+            real_rename = os.rename
+
+            def rename_then_signal(a, b):
+                real_rename(a, b)
+                if ".partial-" in str(a):
+                    os.kill(os.getpid(), signal.SIGTERM)
+            monkeypatch.setattr(output.os, "rename", rename_then_signal)
+            with pytest.raises(KeyboardInterrupt), OutputFolder(out) as f:
+                f.write_json("manifest.json", {})
+                f.commit()
+            # the signal came after the swap was decided: the new output is whole
+            assert (out / "manifest.json").read_text() == "{}\n"
+        else:
+            real_mkdtemp = tempfile.mkdtemp
+
+            def mkdtemp_then_signal(*a, **k):
+                made = real_mkdtemp(*a, **k)
+                os.kill(os.getpid(), signal.SIGTERM)
+                return made
+            monkeypatch.setattr(output.tempfile, "mkdtemp", mkdtemp_then_signal)
+            with pytest.raises(KeyboardInterrupt):
+                OutputFolder(out)
+            assert not out.exists()
+    finally:
+        signal.signal(signal.SIGTERM, old)
+    assert [p.name for p in tmp_path.iterdir()] == (["out"] if during == "the swap" else [])
+
+
 def test_refuses_folder_with_foreign_files(tmp_path):
     (tmp_path / "notes.docx").write_text("precious")
     with pytest.raises(InputError, match="already holds other files"):
