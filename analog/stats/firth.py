@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy import special, stats
+from scipy import linalg, optimize, special, stats
 
 from analog.errors import AnalogError, AnalogWarning
 
@@ -202,8 +202,12 @@ class FirthResult:
         return frame
 
     # -- profile machinery -------------------------------------------------------------
-    def _constrained(self, j, value, start):
-        """Fit with ``b_j`` fixed at ``value``; None if the information is singular there."""
+    def _constrained(self, j, value, start, *, robust=False):
+        """Fit with ``b_j`` fixed at ``value``; None if the information is singular there.
+
+        ``robust`` lets the refit factorize an ill-conditioned information
+        through a QR of ``W^1/2 X`` (see :func:`_qr_factor`).
+        """
         free = np.ones(self.params.size, dtype=bool)
         free[j] = False
         for origin in (start, np.zeros_like(self.params)):
@@ -211,12 +215,73 @@ class FirthResult:
             beta0[j] = value
             try:
                 return _newton(self._X, self._y, self._w, self.penalty == "firth", beta0, free,
-                               self._max_iter, self._tol, want_cov=False)
+                               self._max_iter, self._tol, want_cov=False, robust=robust)
             except _Singular:
                 continue
         return None
 
     def _profile_limit(self, j, direction, q):
+        """Where the profile deviance of b_j reaches the cut-off ``q``, on one side of the estimate.
+
+        The quick search (:meth:`_profile_limit_secant`) is tried first. When
+        one of its refits fails (the jump to the Wald guess can start a refit
+        where fitted probabilities are saturated, so that ``X'WX`` is
+        numerically singular) or it does not settle, the limit is searched
+        again by :meth:`_profile_limit_outward`, which follows the profile
+        from the estimate outward.
+        """
+        try:
+            return self._profile_limit_secant(j, direction, q)
+        except (_Singular, _NoBracket):
+            return self._profile_limit_outward(j, direction, q)
+
+    def _profile_limit_outward(self, j, direction, q):
+        """Profile limit by refits stepping outward from the estimate, then Brent's method.
+
+        The distance ``s = |b_j - b_hat_j|`` grows over 1/4, 1/2, 3/4 and 1 times
+        the Wald distance ``sqrt(q) se_j``, then by a factor 1.5 per step; each
+        refit starts from the constrained estimate of the previous (nearer)
+        point, so the fits follow the profile path instead of starting where
+        the fitted probabilities are saturated, and they factorize the
+        information through a QR of ``W^1/2 X`` when ``X'WX`` is too
+        ill-conditioned for Cholesky. The first step whose profile deviance
+        reaches ``q`` brackets the limit, and :func:`scipy.optimize.brentq`
+        finds the root of ``deviance(s) - q`` inside the bracket. When the
+        deviance stays below ``q`` up to 1000 logit units from the estimate
+        the interval is unbounded on that side (``-inf``/``inf``).
+        """
+        b_hat = self.params[j]
+        path = {0.0: self.params}     # distance -> constrained estimate, for warm starts
+        seen = {}
+
+        def excess(s):
+            """Profile deviance at distance s minus the cut-off (< 0 inside the interval)."""
+            if s not in seen:
+                start = path[max(k for k in path if k <= s)]
+                fit = self._constrained(j, b_hat + direction * s, start, robust=True)
+                if fit is None:
+                    raise _Singular(f"the fit with coefficient {j} fixed at "
+                                    f"{b_hat + direction * s:.6g} has a singular information "
+                                    "matrix")
+                path[s] = fit.beta
+                seen[s] = 2.0 * (self.loglik - fit.loglik) - q
+            return seen[s]
+
+        scale = self.bse[j] if np.isfinite(self.bse[j]) and self.bse[j] > 0 else 1.0
+        wald = np.sqrt(q) * scale
+        inner, s = 0.0, 0.25 * wald
+        while True:
+            if s > _PROFILE_LIMIT:
+                return direction * np.inf
+            if excess(s) >= 0.0:
+                break
+            inner = s
+            s = s + 0.25 * wald if s < wald else 1.5 * s
+        # xtol: about the accuracy of the refits (Newton steps below tol = 1e-8 by default)
+        dist = optimize.brentq(excess, inner, s, xtol=1e-10, rtol=1e-12, maxiter=200)
+        return b_hat + direction * dist
+
+    def _profile_limit_secant(self, j, direction, q):
         """Where the signed root of the profile deviance reaches sqrt(q), on one side of b_j.
 
         Works on the distance ``s = |b_j - b_hat_j|``. The signed root is close
@@ -299,10 +364,52 @@ def _pairs(p):
     return rows, cols, np.where(rows == cols, 1.0, 2.0)
 
 
-def _evaluate(X, y, w, beta, firth, free, exact, all_free=False):
+def _cholesky(info):
+    """Lower Cholesky factor of ``info`` and its inverse; None if that fails."""
+    try:
+        # numpy's small-matrix routines: scipy.linalg's per-call overhead dominates at p ~ 10
+        chol = np.linalg.cholesky(info)
+        chol_inv = np.linalg.inv(chol)
+    except np.linalg.LinAlgError:
+        return None
+    if not ((chol.diagonal() > 0).all() and np.isfinite(chol_inv).all()):
+        return None
+    return chol, chol_inv
+
+
+def _qr_factor(X, v):
+    """Lower factor ``L`` with ``L L' = X' diag(v) X`` from a QR of ``diag(v)^1/2 X``, and ``L^-1``.
+
+    Forming ``X'WX`` squares the condition number: a row with ``v ~ 1e-19``
+    (``|x'b| ~ 44``) next to rows with ``v ~ 0.1`` leaves the product
+    numerically indefinite and its Cholesky factorization fails, although
+    the information is positive definite. Householder QR works on
+    ``W^1/2 X`` itself (condition ~1e10 there), so ``log|I|`` (from the
+    diagonal of R) and the leverages stay accurate. Returns None when a
+    diagonal element of R is zero (weights that underflowed to 0 leave
+    fewer informative rows than columns) or the inverse is not finite.
+    """
+    n, p = X.shape
+    if n < p:
+        return None
+    r = np.linalg.qr(X * np.sqrt(v)[:, None], mode="r")
+    diag = r.diagonal()
+    if not (np.all(np.isfinite(r)) and np.all(diag != 0.0)):
+        return None
+    chol = (r * np.sign(diag)[:, None]).T     # lower triangular, positive diagonal
+    chol_inv = linalg.solve_triangular(chol, np.eye(p), lower=True)
+    if not np.isfinite(chol_inv).all():
+        return None
+    return chol, chol_inv
+
+
+def _evaluate(X, y, w, beta, firth, free, exact, all_free=False, robust=False):
     """(Penalized) log-likelihood, Newton step and inverse Cholesky factor at beta.
 
-    Returns None when the information matrix is not positive definite.
+    Returns None when the information matrix is not positive definite. With
+    ``robust``, a Cholesky factorization of ``X'WX`` that fails is replaced
+    by a QR factorization of ``W^1/2 X`` (:func:`_qr_factor`), which
+    tolerates tiny weights ``p(1-p)``.
     """
     eta = X @ beta
     prob = special.expit(eta)
@@ -311,15 +418,15 @@ def _evaluate(X, y, w, beta, firth, free, exact, all_free=False):
     loglik = float(np.sum(w * (y * eta - np.logaddexp(0.0, eta))))
     v = w * prob * comp
     info = (X * v[:, None]).T @ X
-    try:
-        # numpy's small-matrix routines: scipy.linalg's per-call overhead dominates at p ~ 10
-        chol = np.linalg.cholesky(info)
-        chol_inv = np.linalg.inv(chol)
-    except np.linalg.LinAlgError:
+    factors = _cholesky(info)
+    if factors is None and robust:
+        factors = _qr_factor(X, v)
+        if factors is not None:
+            info = factors[0] @ factors[0].T
+    if factors is None:
         return None
+    chol, chol_inv = factors
     diag = chol.diagonal()
-    if not ((diag > 0).all() and np.isfinite(chol_inv).all()):
-        return None
     resid = w * (y * comp - (1.0 - y) * prob)   # y - prob, exact for y in {0, 1}
     if firth:
         # z_i = L^-1 x_i; leverages h_i = v_i |z_i|^2 as row sums, never the n x n hat matrix
@@ -340,11 +447,12 @@ def _evaluate(X, y, w, beta, firth, free, exact, all_free=False):
         rows, cols, pair_weight = _pairs(z.shape[1])
         m_term = (X * (v * (comp - prob))[:, None]).T @ (z[:, rows] * z[:, cols])
         curvature = info - 0.5 * (a_term - (m_term * pair_weight) @ m_term.T)
-        step = _newton_step(curvature, info, score, free, all_free=all_free, info_chol=chol)
+        step = _newton_step(curvature, info, score, free, all_free=all_free, info_chol=chol,
+                            robust=robust)
     elif all_free:
         step = _solve_chol(chol, score)   # Fisher scoring with the factor already at hand
     else:
-        step = _newton_step(info, info, score, free)
+        step = _newton_step(info, info, score, free, info_chol=chol, robust=robust)
     if step is None:
         return None
     return loglik, step, chol_inv
@@ -356,13 +464,16 @@ def _solve_chol(chol, rhs):
     return step if np.isfinite(step).all() else None
 
 
-def _newton_step(curvature, info, score, free, *, all_free=False, info_chol=None):
+def _newton_step(curvature, info, score, free, *, all_free=False, info_chol=None, robust=False):
     """Solve on the free coordinates with the exact curvature, or the information if that fails.
 
     The penalized objective is not concave everywhere; where its curvature is
     not positive definite the Fisher-scoring step of Heinze & Schemper (2002)
     is taken instead. With every coordinate free, ``info_chol`` (the factor of
-    ``info``) saves factorizing it again.
+    ``info``) saves factorizing it again. With ``robust``, when the free block
+    of ``info`` is too ill-conditioned for a Cholesky factorization, the
+    Fisher step is solved from a QR factorization of the free rows of
+    ``info_chol`` (``info_ff = B B'`` with ``B = L[free, :]``).
     """
     if all_free and info_chol is not None:
         try:
@@ -380,22 +491,30 @@ def _newton_step(curvature, info, score, free, *, all_free=False, info_chol=None
         step[free] = np.linalg.solve(chol.T, np.linalg.solve(chol, score[free]))
         if np.all(np.isfinite(step)):
             return step
+    if robust and info_chol is not None:
+        r = np.linalg.qr(info_chol[free, :].T, mode="r")
+        if np.all(r.diagonal() != 0.0):
+            half = linalg.solve_triangular(r, score[free], trans="T")
+            step[free] = linalg.solve_triangular(r, half)
+            if np.all(np.isfinite(step)):
+                return step
     return None
 
 
-def _newton(X, y, w, firth, beta0, free, max_iter, tol, *, want_cov=True):
+def _newton(X, y, w, firth, beta0, free, max_iter, tol, *, want_cov=True, robust=False):
     """Newton-Raphson on the (modified) score with step-halving on the (penalized) log-likelihood.
 
     Steps start as Fisher scoring (``I^-1 U*``), which is cheap and usually
     fast. When, after three steps, a step shrinks by less than a factor 4, or
     when a step needed halving, the iterations switch to the exact Hessian of
     the penalized objective, which converges quadratically where Fisher
-    scoring crawls (near separation).
+    scoring crawls (near separation). ``robust`` is passed to
+    :func:`_evaluate` (QR fallback when the information is ill-conditioned).
     """
     beta = beta0.copy()
     exact = False
     all_free = bool(free.all())
-    state = _evaluate(X, y, w, beta, firth, free, exact, all_free)
+    state = _evaluate(X, y, w, beta, firth, free, exact, all_free, robust)
     if state is None:
         raise _Singular("the information matrix is singular at the start values; "
                         "X is probably rank deficient (drop or merge collinear columns)")
@@ -412,7 +531,7 @@ def _newton(X, y, w, firth, beta0, free, max_iter, tol, *, want_cov=True):
             break
         if firth and not exact and n_iter >= 3 and biggest > 0.25 * previous:
             exact = True
-            state = _evaluate(X, y, w, beta, firth, free, exact, all_free)
+            state = _evaluate(X, y, w, beta, firth, free, exact, all_free, robust)
             loglik, step, _ = state
             biggest = np.max(np.abs(step), initial=0.0)
         previous = biggest
@@ -420,7 +539,7 @@ def _newton(X, y, w, firth, beta0, free, max_iter, tol, *, want_cov=True):
             step = step * (_MAX_STEP / biggest)
         for halvings in range(_MAX_HALVINGS):
             trial = beta + step
-            new = _evaluate(X, y, w, trial, firth, free, exact, all_free)
+            new = _evaluate(X, y, w, trial, firth, free, exact, all_free, robust)
             if new is not None and new[0] >= loglik - 1e-10 * (1.0 + abs(loglik)):
                 break
             step = step / 2.0
@@ -428,7 +547,7 @@ def _newton(X, y, w, firth, beta0, free, max_iter, tol, *, want_cov=True):
             break   # no step improves the objective: stop, not converged
         if halvings and firth and not exact:
             exact = True
-            new = _evaluate(X, y, w, trial, firth, free, exact, all_free)
+            new = _evaluate(X, y, w, trial, firth, free, exact, all_free, robust)
         beta, state = trial, new
         n_iter += 1
     cov = None

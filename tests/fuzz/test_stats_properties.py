@@ -203,10 +203,6 @@ def test_firth_profile_intervals_hold_the_estimate(design):
     assert np.all(p_values[excludes & finite_p] < 0.05 + 1e-6)
 
 
-@pytest.mark.xfail(strict=True, reason="a profile refit starts from the estimate (or 0) with "
-                   "b_j moved to its Wald guess; rows at |x'b| ~ 44-50 get p(1-p) ~ 1e-19, the "
-                   "Cholesky of X'WX fails (FirthResult._constrained, analog/stats/firth.py) "
-                   "and the limit is left NaN although the profile crosses the cut-off")
 def test_firth_profile_limit_found_in_sparse_design():
     # smallest case found by the property test above (4 rows, 3 coefficients, no events).
     # An independent profile (penalized log-likelihood through a QR factor of W^1/2 X,
