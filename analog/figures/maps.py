@@ -17,7 +17,7 @@ from matplotlib.patches import Patch, Rectangle
 from matplotlib.transforms import Bbox
 
 from .params import PARAMS, FigureParams
-from .style import (short_label, CONTEXT_FILL, CONTEXT_LINE, DIFFERENCE_CMAP, NO_DATA_COLOUR, NO_DATA_EDGE, NO_DATA_HATCH,
+from .style import (short_label, CONTEXT_FILL, LABEL_BOX, CONTEXT_LINE, DIFFERENCE_CMAP, NO_DATA_COLOUR, NO_DATA_EDGE, NO_DATA_HATCH,
                     REGION_EDGE, SEQUENTIAL, add_caption, figure_style, place_labels)
 
 __all__ = ["map_figures", "risk_map", "side_by_side_maps", "difference_map", "region_inset", "MAP_UNITS"]
@@ -80,7 +80,7 @@ def risk_map(region_result, *, context=None, data_date: str | None = None, param
         _no_data_legend(fig, m, anchor=(cax.get_position().x0 - 0.015, cax.get_position().y0 - 0.03))
         _title(fig, "Relative risk from warming, by region (combined evidence)",
                "Analog and trajectory evidence pooled; darker = higher expected losses among the taxa assessed")
-        add_caption(fig, _caption(region_result, params), data_date=data_date)
+        add_caption(fig, _caption(region_result, params, note=m.label_note), data_date=data_date)
     return fig
 
 
@@ -114,7 +114,7 @@ def side_by_side_maps(region_result, *, context=None, data_date: str | None = No
         _no_data_legend(fig, m, anchor=(pos.x1 + 0.07, (pos.y0 + pos.y1) / 2), loc="center left")
         _title(fig, "Risk by region from each line of evidence",
                "Same colour scale in both panels; each panel uses the taxa that line of evidence assessed")
-        add_caption(fig, _caption(region_result, params), data_date=data_date)
+        add_caption(fig, _caption(region_result, params, note=m.label_note), data_date=data_date)
     return fig
 
 
@@ -148,7 +148,8 @@ def difference_map(region_result, *, context=None, data_date: str | None = None,
         _title(fig, "Where the two lines of evidence disagree, by region",
                "Purple: analog evidence points to higher risk; orange: trajectory evidence does. "
                "Same taxa on both sides")
-        add_caption(fig, _caption(region_result, params, taxa="taxa with both lines of evidence"),
+        add_caption(fig, _caption(region_result, params, taxa="taxa with both lines of evidence",
+                                     note=m.label_note),
                     data_date=data_date)
     return fig
 
@@ -198,6 +199,8 @@ class _MapData:
     def __init__(self, region_result, context, params):
         self.result = region_result
         self.params = params
+        self.label_note = ""  # set when only some regions are labelled
+        self._labelled_counts: list[int] = []  # labels drawn, per map panel
         self.crs = pyproj.CRS.from_user_input(region_result.projection)
         self.layer = region_result.layer.to_crs(self.crs).reset_index(drop=True)
         x0, y0, x1, y1 = self.layer.total_bounds
@@ -312,16 +315,56 @@ class _MapData:
                 texts.append(f"{name}\n(insufficient data)")
             else:
                 texts.append(f"{name}\n{v:+.2f}" if signed else f"{name}\n{_fmt_value(v, self.params.map_value)}")
+        ax.apply_aspect()
+        keep, order = self._labelled(ax, texts, values, flagged, fontsize, signed)
         # regions smaller on the page than a label are kept clear, so their fill (or hatching)
         # stays visible; their labels move off with a leader line
-        ax.apply_aspect()
         small = []
-        for geom in self.layer.geometry:
+        for geom in self.layer.geometry.iloc[keep]:
             x0, y0, x1, y1 = geom.bounds
             (a, b), (c, d) = ax.transData.transform([(x0, y0), (x1, y1)])
             if (c - a) < 40 or (d - b) < 25:  # pixels at 100 dpi
                 small.append(Bbox([[a - 2, b - 2], [c + 2, d + 2]]))
-        place_labels(ax, anchors, texts, obstacles=list(obstacles) + small, fontsize=fontsize, linespacing=1.05)
+        shown = place_labels(ax, anchors[keep], [texts[i] for i in keep], obstacles=list(obstacles) + small,
+                             fontsize=fontsize, linespacing=1.05, priority=order)
+        self._labelled_counts.append(len(shown))
+        n = len(texts)
+        if min(self._labelled_counts) < n:
+            what = "largest differences" if signed else "highest values"
+            c = self._labelled_counts
+            counts = f"{c[0]} (left panel) and {c[1]} (right panel)" if len(c) == 2 else str(c[-1])
+            self.label_note = (f"Labels name {counts} of the {n:,} regions ({what} first; labels that "
+                               "would overlap are left out); region_summary.csv lists every region.")
+
+    def _labelled(self, ax, texts, values, flagged, fontsize, signed) -> tuple[np.ndarray, np.ndarray]:
+        """Indices of the regions to label (layer order), and their order of importance.
+
+        Every region when they fit: at most ``max_region_labels``, with labels covering at most
+        an eighth of the map (a limit chosen by looking at maps of 50 and 500 regions: denser
+        labels are pushed off their regions onto tangles of leader lines). Otherwise
+        the regions with the highest values (largest differences when ``signed``; regions
+        without data last) are labelled. Labels that still collide after placement are left
+        out, least important first, and ``self.label_note`` says so for the caption.
+        """
+        n = len(texts)
+        renderer = ax.figure.canvas.get_renderer()
+        probe = ax.text(0, 0, "", ha="center", va="center", fontsize=fontsize, bbox=LABEL_BOX, linespacing=1.05)
+        areas = []
+        for t in dict.fromkeys(texts):
+            probe.set_text(t)
+            e = probe.get_window_extent(renderer)
+            areas.append(e.width * e.height)
+        probe.remove()
+        box = ax.get_window_extent(renderer)
+        room = int(0.12 * box.width * box.height / max(float(np.median(areas)), 1.0)) if areas else n
+        k = min(n, int(self.params.max_region_labels), room)
+        v = np.abs(values) if signed else np.asarray(values, dtype=float)
+        priority = np.where(np.asarray(flagged) | ~np.isfinite(v), -np.inf, v)
+        ranked = np.argsort(-priority, kind="stable")[:k]
+        keep = np.sort(ranked)
+        # positions of the kept labels in ``keep``, most important first
+        order = np.searchsorted(keep, ranked)
+        return keep, order
 
 
 def _rings_path(geom):
@@ -481,10 +524,11 @@ def _title(fig, title: str, subtitle: str):
     fig.text(0.02, 1 - 0.36 / H, subtitle, ha="left", va="top", fontsize=8, color="#333333")
 
 
-def _caption(region_result, params, taxa: str = "assessed taxa") -> str:
+def _caption(region_result, params, taxa: str = "assessed taxa", note: str = "") -> str:
     what = ("Colour: mean probability of loss among a region's " + taxa if params.map_value == "mean_p"
             else "Colour: expected number of " + taxa + " lost")
     hatched = (region_result.region_summary["data_flag"] != "ok").any()
     return (f"{what}, from modern occurrence records."
             + (" Hatched: too few taxa or records to map (not low risk)." if hatched else "")
-            + f" {region_result.unassigned} records fell outside every region.")
+            + f" {region_result.unassigned:,} records fell outside every region."
+            + (f" {note}" if note else ""))

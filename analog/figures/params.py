@@ -26,6 +26,11 @@ class FigureParams(Params):
     label_regions: bool = field(default=True, metadata={"doc": "Write region labels on maps."})
     label_field: str = field(default="name", metadata={
         "choices": ("name", "region_id"), "doc": "Which column labels the regions."})
+    max_region_labels: int = field(default=20, metadata={
+        "min": 0, "max": 2000,
+        "doc": "Most regions labelled on one map. With more regions than this, or more than the map has "
+               "room for, the regions with the highest values are labelled and the caption says so; "
+               "every region is in region_summary.csv and regions.gpkg."})
     label_values: bool = field(default=True, metadata={
         "doc": "Add each region's mapped value under its label on the main risk map."})
     show_context: bool = field(default=True, metadata={

@@ -200,14 +200,18 @@ LEADER_LINE = {"color": "#555555", "linewidth": 0.6}
 
 
 def place_labels(ax, anchors, texts, *, obstacles=(), fontsize: float = 7.5, max_iter: int = 400,
-                 pad_px: float = 2.0, anchor_dot: bool = True, **text_kw):
+                 pad_px: float = 2.0, anchor_dot: bool = True, priority=None, **text_kw):
     """Write ``texts`` near ``anchors`` (data coordinates) so that no two labels overlap.
 
     Labels start centred on their anchors and are pushed apart, pair by pair along the axis of
     least overlap, until none overlap each other, the ``obstacles`` (display-space Bboxes such
     as a scale bar) or the axes edge. The order of pushes is fixed, so the result is
     deterministic. A label that ends up away from its anchor gets a leader line (and a dot at
-    the anchor when ``anchor_dot``). Returns the Text artists.
+    the anchor when ``anchor_dot``).
+
+    With ``priority`` (label indices, most important first), labels that still overlap a label
+    of higher priority or an obstacle after the pushes are left out, so none collide. Returns
+    the Text artists drawn.
     """
     import numpy as np
 
@@ -228,8 +232,20 @@ def place_labels(ax, anchors, texts, *, obstacles=(), fontsize: float = 7.5, max
     obs = [(np.array([(b.x0 + b.x1) / 2, (b.y0 + b.y1) / 2]), np.array([b.width / 2, b.height / 2]))
            for b in obstacles]
     pos = _push_apart(pos, half, obs, (box.x0, box.y0, box.x1, box.y1), max_iter)
+    shown = np.ones(len(arts), dtype=bool)
+    if priority is not None:
+        shown[:] = False
+        ink = half - pad_px  # the label boxes themselves, without the spacing the pushes keep
+        for i in priority:
+            others = [(pos[j], ink[j]) for j in np.flatnonzero(shown)] + obs
+            shown[i] = not any(np.all(np.abs(pos[i] - c) < ink[i] + h) for c, h in others)
+        for a, keep in zip(arts, shown):
+            if not keep:
+                a.remove()
     inv = ax.transData.inverted()
-    for a, p, s, h, anchor in zip(arts, pos, start, half, anchors):
+    for a, p, s, h, anchor, keep in zip(arts, pos, start, half, anchors, shown):
+        if not keep:
+            continue
         a.set_position(inv.transform(p))
         if np.hypot(*(p - s)) > 0.8 * h[1]:
             # the line stops at the edge of the label's box, not under its text
@@ -241,4 +257,4 @@ def place_labels(ax, anchors, texts, *, obstacles=(), fontsize: float = 7.5, max
             ax.plot([anchor[0], end[0]], [anchor[1], end[1]], zorder=5, **LEADER_LINE)
             if anchor_dot:
                 ax.plot([anchor[0]], [anchor[1]], marker="o", markersize=1.8, color=LEADER_LINE["color"], zorder=5)
-    return arts
+    return [a for a, keep in zip(arts, shown) if keep]

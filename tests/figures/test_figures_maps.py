@@ -166,3 +166,50 @@ def test_holes_stay_empty(results):
 
     np.testing.assert_array_equal(pixel(12.84, 43.16), [255, 255, 255])    # in the hole, off the island
     assert not np.array_equal(pixel(12.4, 43.6), [255, 255, 255])          # R2's body is coloured
+
+
+@pytest.fixture(scope="module")
+def many_regions(results):
+    """The same result on a 20 x 20 grid of small regions, with values rising to the north-east."""
+    import copy
+
+    from shapely.geometry import box
+
+    _, _, res = results
+    row = res.layer.iloc[[0]]
+    cells = [box(10 + 0.1 * i, 40 + 0.1 * j, 10.1 + 0.1 * i, 40.1 + 0.1 * j) for j in range(20) for i in range(20)]
+    layer = gpd.GeoDataFrame(row.drop(columns="geometry").loc[row.index.repeat(len(cells))].reset_index(drop=True),
+                             geometry=cells, crs="EPSG:4326")
+    layer["region_id"] = [f"G{k:03d}" for k in range(len(cells))]
+    layer["name"] = [f"Cell {k}" for k in range(len(cells))]
+    layer["data_flag"] = "ok"
+    rank = np.arange(len(cells)) / len(cells)
+    for col in ("mean_combined_p", "analog_mean_p", "trajectory_mean_p"):
+        layer[col] = 0.1 + 0.5 * rank
+    layer["mean_difference"] = np.linspace(-0.2, 0.3, len(cells))
+    many = copy.copy(res)
+    many.layer = layer
+    many.region_summary = layer.drop(columns="geometry").assign(flag_reason="", area_km2=100.0)
+    return many
+
+
+@pytest.mark.parametrize("draw", [maps.risk_map, maps.side_by_side_maps, maps.difference_map])
+def test_many_regions_label_the_highest_without_collisions_and_say_so(many_regions, draw):
+    params = FIGS(max_region_labels=15)
+    fig = draw(many_regions, params=params)
+    top = {f"Cell {k}" for k in range(385, 400)}  # the 15 highest values (and largest differences)
+    for ax in _map_axes(fig):
+        boxes = _label_boxes(fig, ax)
+        assert 0 < len(boxes) <= 15
+        for a, b in itertools.combinations(boxes, 2):
+            assert not a.overlaps(b), "two region labels overlap"
+        shown = {t.get_text().split("\n")[0] for t in ax.texts if t.get_bbox_patch() is not None}
+        assert shown <= top, "labels go to the regions with the highest values first"
+    caption = " ".join(t.get_text() for t in fig.texts)
+    assert "of the 400 regions" in caption and "region_summary.csv lists every region" in caption
+
+
+def test_few_regions_are_all_labelled_with_no_note(results):
+    _, _, res = results
+    fig = maps.risk_map(res)
+    assert "Labels name" not in " ".join(t.get_text() for t in fig.texts)
