@@ -238,6 +238,7 @@ def _run(study, params, *, rng, progress, engine) -> TrajectoryResult:
                                     progress=progress, engine=engine)
     risk, risk_draws = _risk_table(taxa, table, batch, fitset, labels, ext_idx, probs, avg, draws, p, step_myr,
                                    n_occupied)
+    _warn_if_threshold_above_most(risk, p)
 
     step("noise null", 3)
     extinct_ids = taxa.loc[~taxa["extant"].astype(bool), "taxon_id"]
@@ -260,6 +261,27 @@ def _run(study, params, *, rng, progress, engine) -> TrajectoryResult:
         hindcast=hind, noise_null=null_table, skill=skill, params=p, bins=occ.bins, dropped=occ.dropped,
         hindcast_cases=cases, fitset=fitset, step_myr=step_myr, threshold_logit=thr, method=occ.method,
         null_summary=null_summary, null_samples=null_samples)
+
+
+def _warn_if_threshold_above_most(risk: pd.DataFrame, p) -> None:
+    """Warn when most scored taxa already sit at or below the quasi-extinction threshold.
+
+    Their probabilities are then all near 1, so the trajectory line hardly ranks them; this
+    happens when occupancy is low everywhere (many sampling units, few per taxon).
+    """
+    import warnings
+
+    scored = risk["trajectory_p"].notna()
+    below = scored & (risk["current_occupancy"] <= p.threshold_occupancy)
+    if not scored.any() or below.sum() < 0.5 * scored.sum():
+        return
+    median = float(risk.loc[scored, "current_occupancy"].median())
+    warnings.warn(
+        f"trajectory: {int(below.sum()):,} of {int(scored.sum()):,} living taxa with a trajectory score are "
+        f"already at or below the quasi-extinction threshold (occupancy {p.threshold_occupancy:g}; median "
+        f"current occupancy {median:.2g}), so their scores sit near 1 and hardly rank them. Set [trajectory] "
+        "threshold_occupancy below the typical occupancy, or count larger sampling units (a larger cell_km), "
+        "so that the score can separate taxa.", AnalogWarning, stacklevel=3)
 
 
 def _fits_table(fitset: FitSet, labels: np.ndarray, min_bins: int) -> pd.DataFrame:
