@@ -120,7 +120,8 @@ def _run_stages(study: Study, *, progress, stages, engine) -> RunResult:
             result = fn()
         for w in caught:
             if issubclass(w.category, AnalogWarning):
-                run.warnings.append(f"{stage}: {w.message}")
+                text = str(w.message)
+                run.warnings.append(text if text.startswith(f"{stage}: ") else f"{stage}: {text}")
             else:
                 warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
         run.timings[stage] = time.perf_counter() - t0

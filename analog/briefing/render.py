@@ -591,6 +591,7 @@ class _RiskRows:
 
 
 MAX_RANKING_ROWS = 2000  # rows of the study-wide ranked table in briefing.html; rankings.csv has every taxon
+TOC_REGION_LIMIT = 40    # regions listed one by one in the contents; beyond, the regions table leads to them
 MAX_REGION_ROWS = 250    # rows of a region page's table of taxa; region_taxa.csv has every taxon recorded
 TOP_REGION_ROWS = 10     # most vulnerable taxa per region in briefing.html
 
@@ -950,6 +951,12 @@ def _region_tables(risk: _RiskRows, rows: np.ndarray, records: np.ndarray, *, sl
     return present, top
 
 
+def _natural_key(text: str) -> tuple:
+    """Sort key that orders "District 2" before "District 10" (case-insensitive)."""
+    parts = re.split(r"(\d+)", text.lower())
+    return tuple((0, int(t), "") if t.isdigit() else (1, 0, t) for t in parts)
+
+
 def _regions(r: _Run, risk: _RiskRows | None, *, draw_insets: bool) -> list[RegionView]:
     summary = r.table("regions", "region_summary.csv")
     if summary is None or "region_id" not in summary.columns:
@@ -963,7 +970,8 @@ def _regions(r: _Run, risk: _RiskRows | None, *, draw_insets: bool) -> list[Regi
     taken: set[str] = set()
     views = []
     rows = summary.to_dict("records")
-    rows.sort(key=lambda row: (_text(row.get("name"), str(row["region_id"])).lower(), str(row["region_id"])))
+    rows.sort(key=lambda row: (_natural_key(_text(row.get("name"), str(row["region_id"]))),
+                               _natural_key(str(row["region_id"]))))
     empty = (np.zeros(0, dtype=np.int64), np.zeros(0))
     for row in rows:
         rid = str(row["region_id"])
@@ -1771,6 +1779,7 @@ def build_briefing(run: Any, *, figures: Mapping[str, Mapping[str, bytes]] | Non
         "ranking": ranking_table,
         "ranking_missing": None if rankings is not None else r.why_missing("combine"),
         "regions": regions,
+        "toc_region_limit": TOC_REGION_LIMIT,
         "region_overview": _region_overview(r, regions) if regions else None,
         "regions_missing": None if regions else r.why_missing("regions"),
         "figures": figs,

@@ -277,7 +277,7 @@ def _warn_if_threshold_above_most(risk: pd.DataFrame, p) -> None:
         return
     median = float(risk.loc[scored, "current_occupancy"].median())
     warnings.warn(
-        f"trajectory: {int(below.sum()):,} of {int(scored.sum()):,} living taxa with a trajectory score are "
+        f"{int(below.sum()):,} of {int(scored.sum()):,} living taxa with a trajectory score are "
         f"already at or below the quasi-extinction threshold (occupancy {p.threshold_occupancy:g}; median "
         f"current occupancy {median:.2g}), so their scores sit near 1 and hardly rank them. Set [trajectory] "
         "threshold_occupancy below the typical occupancy, or count larger sampling units (a larger cell_km), "

@@ -401,3 +401,11 @@ def test_table_cells_escape_like_the_templates():
     assert html == f'<td class="num" data-sort="{esc}" title="{esc}">{esc}</td>\n'
     taxon = _cell_html(Cell(odd, None, "taxon", taxon=Taxon("t", odd, True)))
     assert taxon == f'<td class="taxon"><i>{esc}</i></td>\n'
+
+
+def test_region_names_sort_naturally():
+    from analog.briefing.render import _natural_key
+
+    names = ["District 10", "district 2", "District 1", "Ombrel Deep", "District 100", "Area 7b", "Area 7a"]
+    assert sorted(names, key=_natural_key) == ["Area 7a", "Area 7b", "District 1", "district 2", "District 10",
+                                               "District 100", "Ombrel Deep"]
