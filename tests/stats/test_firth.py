@@ -247,6 +247,69 @@ def test_firth_quasi_separation_gives_finite_profile_interval():
     assert ci[1, 1] - got.params[1] > got.params[1] - ci[1, 0]
 
 
+def _penalized_loglik_svd(beta, X, y):
+    """Firth's objective with log det(X'WX) from the singular values of W^1/2 X (numpy SVD),
+    accurate where the fitted probabilities saturate and X'WX itself is numerically singular."""
+    eta = X @ beta
+    v = special.expit(eta) * special.expit(-eta)
+    sv = np.linalg.svd(X * np.sqrt(v)[:, None], compute_uv=False)
+    return np.sum(y * eta - np.logaddexp(0.0, eta)) + np.sum(np.log(sv))
+
+
+def _grid_profile_limit(X, y, j, side, q, first, step, lmax, full):
+    """Brute-force profile: maximize with b_j fixed on a grid first, first + side*step, ...
+    (scipy BFGS, each point started from the previous one and from the full estimate ``full``),
+    find the first grid cell where the deviance passes q and interpolate the signed root
+    linearly inside it."""
+    others = [k for k in range(X.shape[1]) if k != j]
+
+    def deviance(value, starts):
+        def negobj(b_other):
+            b = np.empty(X.shape[1])
+            b[j] = value
+            b[others] = b_other
+            return -_penalized_loglik_svd(b, X, y)
+        best = min((optimize.minimize(negobj, s0, method="BFGS", options={"gtol": 1e-10})
+                    for s0 in starts), key=lambda r: r.fun)
+        return 2.0 * (lmax + best.fun), best.x
+
+    dev, warm = deviance(first, [full[others]])
+    values, devs = [first], [dev]
+    assert dev < q, "the grid must start inside the interval"
+    while devs[-1] < q:
+        assert abs(values[-1] - first) < 100, "no crossing within 100 logit units"
+        values.append(values[-1] + side * step)
+        dev, warm = deviance(values[-1], [warm, full[others]])
+        devs.append(dev)
+    root = np.sqrt(np.clip(devs[-2:], 0.0, None))
+    return float(np.interp(np.sqrt(q), root, values[-2:]))
+
+
+def test_firth_profile_limit_in_sparse_design_matches_grid_profile():
+    # five rows, one event, two integer covariates: the Wald guess for the lower limit of b1
+    # (-19.5) lies where the fitted probabilities of some rows saturate (X'WX numerically
+    # singular), far beyond the actual limit (-11.09). The profile penalized-likelihood limit
+    # (method: Heinze & Schemper 2002, sec. 2) is checked against an independent brute-force
+    # profile (reference library: scipy.optimize BFGS on the explicit objective over a grid,
+    # coarse then fine, with the cut-off crossing interpolated)
+    X = np.array([[1.0, -3.0, 2.0], [1.0, 0.0, -3.0], [1.0, 2.0, -2.0], [1.0, -3.0, 3.0],
+                  [1.0, 2.0, -3.0]])
+    y = np.array([1.0, 0.0, 0.0, 0.0, 0.0])
+    got = firth_logit(X, y)
+    ref_beta, lmax = _brute_force_firth(X, y)
+    np.testing.assert_allclose(got.params, ref_beta, atol=1e-5)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", AnalogWarning)   # no limit may be left NaN
+        ci = got.conf_int()
+    q = stats.chi2.isf(0.05, 1)
+    coarse = _grid_profile_limit(X, y, 1, -1.0, q, ref_beta[1], 1.0, lmax, ref_beta)
+    # fine grid started one coarse step inside the crossing
+    fine = _grid_profile_limit(X, y, 1, -1.0, q, coarse + 1.0, 0.05, lmax, ref_beta)
+    assert ci[1, 0] == pytest.approx(coarse, abs=0.2)
+    assert ci[1, 0] == pytest.approx(fine, abs=1e-4)
+    assert np.all(np.isfinite(ci)) and np.all((ci[:, 0] < got.params) & (got.params < ci[:, 1]))
+
+
 def test_ml_under_complete_separation_does_not_converge(complete_separation):
     X, y = complete_separation
     with pytest.warns(AnalogWarning, match="did not converge|numerically 0 or 1"):
