@@ -90,7 +90,7 @@ def _assess(study, combined_result, params: RegionParams, *, progress, engine) -
     unassigned = occ.loc[~inside, ["occurrenceID", "taxon_id", "decimalLatitude", "decimalLongitude"]]
     unassigned = unassigned.reset_index(drop=True)
     if len(unassigned):
-        notes.append(f"{len(unassigned)} of {len(occ)} modern occurrences fall in no region; they are listed "
+        notes.append(f"{len(unassigned):,} of {len(occ):,} modern occurrences fall in no region; they are listed "
                      "in unassigned_occurrences.csv and left out of the region indices")
 
     records = _region_records(pos, occ["taxon_id"], region_ids)
@@ -113,6 +113,25 @@ def _assess(study, combined_result, params: RegionParams, *, progress, engine) -
     return RegionResult(presence=presence, region_summary=summary, layer=layer, unassigned=int(len(unassigned)),
                         unassigned_occurrences=unassigned, projection=ea.proj, projection_label=ea.label,
                         params=params, warnings=notes)
+
+
+def _note_off_centre(out: pd.DataFrame, notes: list[str]) -> None:
+    """Note regions whose expected losses lie outside their own interval.
+
+    The interval comes from the resampled scores, the point value from the point scores; when
+    the resampled scores run systematically above or below them (typically when many scores
+    sit near 0 or 1), a sum over many taxa can move the whole interval past the point value.
+    """
+    point, low, high = (out[c].to_numpy(dtype=float) for c in
+                        ("expected_losses", "expected_losses_low", "expected_losses_high"))
+    with np.errstate(invalid="ignore"):
+        below, above = point < low, point > high
+    if below.any() or above.any():
+        side = "above" if below.sum() >= above.sum() else "below"
+        notes.append(f"in {int(below.sum() + above.sum()):,} of {len(out):,} regions the expected number of taxa "
+                     f"lost lies outside its own interval (the resampled scores run mostly {side} the point "
+                     "scores, which happens when many scores sit near 0 or 1); there the interval shows the "
+                     "spread but is off-centre, so quote the point value and the interval together")
 
 
 def _indices(regions, presence, records, combined_result, study, params, notes, engine=None) -> pd.DataFrame:
@@ -165,6 +184,7 @@ def _indices(regions, presence, records, combined_result, study, params, notes, 
     out["mean_difference"] = np.divide(diff_sum, n_both, out=np.full(len(rid), np.nan), where=n_both > 0)
     out = out.join(_diversity(study, taxa, combined_mask, combined_p, combined_draws, alpha, rid, notes, engine))
 
+    _note_off_centre(out, notes)
     few_taxa = out["n_taxa"] < params.min_taxa
     few_records = out["n_records"] < params.min_region_records
     out["data_flag"] = np.where(few_taxa | few_records, "insufficient data", "ok")

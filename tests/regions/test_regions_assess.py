@@ -169,3 +169,21 @@ def test_region_without_records_is_flagged_and_hatched(setup):
     fig = maps.risk_map(res)
     hatched = [c for c in fig.axes[0].collections if c.get_zorder() == 2 and c.get_hatch()]
     assert len(hatched) == 1 and len(hatched[0].get_paths()) == 3  # R5, R6 and the empty R9
+
+
+def test_expected_losses_outside_their_interval_are_noted():
+    import pandas as pd
+
+    from analog.regions.core import _note_off_centre
+
+    out = pd.DataFrame({"expected_losses": [5.0, 306.5, 2.0, float("nan")],
+                        "expected_losses_low": [4.0, 307.7, 1.0, 0.0],
+                        "expected_losses_high": [6.0, 317.7, 3.0, 1.0]})
+    notes: list[str] = []
+    _note_off_centre(out, notes)
+    assert len(notes) == 1
+    assert notes[0].startswith("in 1 of 4 regions the expected number of taxa lost lies outside its own interval")
+    assert "run mostly above the point scores" in notes[0]
+    inside: list[str] = []
+    _note_off_centre(out.iloc[[0, 2, 3]], inside)
+    assert inside == []
