@@ -100,8 +100,10 @@ class FirthResult:
         ndarray, shape (p, 2)
             Lower and upper limits. A profile limit is ``-inf``/``inf`` when the
             profile does not fall to the cut-off within 1000 logit units of the
-            estimate, and NaN (with an :class:`AnalogWarning`) when the fit did
-            not converge or a constrained refit failed.
+            estimate (the interval is unbounded on that side), and NaN (with an
+            :class:`AnalogWarning`) when the fit did not converge or a
+            constrained refit failed even with the QR factorization of
+            ``W^1/2 X`` (fitted probabilities exactly 0 or 1 in double precision).
         """
         alpha = _check_alpha(alpha)
         if method not in _CI_METHODS:
@@ -263,6 +265,9 @@ class FirthResult:
                     raise _Singular(f"the fit with coefficient {j} fixed at "
                                     f"{b_hat + direction * s:.6g} has a singular information "
                                     "matrix")
+                if not np.isfinite(fit.loglik):
+                    raise _NoBracket(f"the fit with coefficient {j} fixed at "
+                                     f"{b_hat + direction * s:.6g} has no finite likelihood")
                 path[s] = fit.beta
                 seen[s] = 2.0 * (self.loglik - fit.loglik) - q
             return seen[s]
@@ -278,7 +283,10 @@ class FirthResult:
             inner = s
             s = s + 0.25 * wald if s < wald else 1.5 * s
         # xtol: about the accuracy of the refits (Newton steps below tol = 1e-8 by default)
-        dist = optimize.brentq(excess, inner, s, xtol=1e-10, rtol=1e-12, maxiter=200)
+        try:
+            dist = optimize.brentq(excess, inner, s, xtol=1e-10, rtol=1e-12, maxiter=200)
+        except RuntimeError as exc:    # brentq did not converge in maxiter
+            raise _NoBracket(f"the profile limit of coefficient {j} did not settle") from exc
         return b_hat + direction * dist
 
     def _profile_limit_secant(self, j, direction, q):
@@ -639,7 +647,13 @@ def firth_logit(X, y, *, penalty="firth", max_iter=100, tol=1e-8, weights=None, 
     intervals refit the model with one coefficient fixed, keeping the
     penalty of the full information matrix, and find the cut-off on the
     signed root of the profile deviance by secant steps from the Wald guess
-    and a regula falsi inside the bracket.
+    and a regula falsi inside the bracket. In very sparse designs the Wald
+    guess can lie where some fitted probabilities saturate (``p(1-p)`` ~
+    1e-19) and ``X'WX`` cannot be Cholesky-factorized; the limit is then
+    searched again by refits stepping outward from the estimate, each started
+    from the previous one and factorizing the information through a QR of
+    ``W^1/2 X`` when needed, with :func:`scipy.optimize.brentq` on the
+    profile deviance minus the cut-off once a step passes it.
 
     References
     ----------
