@@ -409,3 +409,19 @@ def test_region_names_sort_naturally():
     names = ["District 10", "district 2", "District 1", "Ombrel Deep", "District 100", "Area 7b", "Area 7a"]
     assert sorted(names, key=_natural_key) == ["Area 7a", "Area 7b", "District 1", "district 2", "District 10",
                                                "District 100", "Ombrel Deep"]
+
+
+def test_many_regions_leave_insets_to_their_own_pages(synthetic_run, synthetic_figures, fake_maps, monkeypatch):
+    """Above the contents limit the main page neither lists every region nor embeds every inset."""
+    from analog.briefing import render
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", AnalogWarning)  # the fake inset of R3 fails on purpose
+        few = build_briefing(synthetic_run, figures=synthetic_figures)["briefing.html"]
+        monkeypatch.setattr(render, "TOC_REGION_LIMIT", 2)   # the synthetic study has three regions
+        out = build_briefing(synthetic_run, figures=synthetic_figures)
+    assert 'class="toc-regions"' in few and "own page</a> (with" not in few
+    main = out["briefing.html"]
+    assert 'class="toc-regions"' not in main and "3 regions, in the order of the table" in main
+    assert 'The locator map is on <a href="regions/R1.html">this region\'s own page</a>' in main
+    assert "<img" in out["regions/R1.html"]   # the region's own page keeps its map
