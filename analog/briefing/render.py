@@ -613,10 +613,15 @@ def _rankings(r: _Run) -> pd.DataFrame | None:
     return r.table("combined", "rankings.csv")
 
 
-def _assessed(rankings: pd.DataFrame) -> pd.DataFrame:
+def _has_evidence(rankings: pd.DataFrame) -> np.ndarray:
+    """Rows resting on at least one line of evidence (all rows when the column is absent)."""
     if "evidence" in rankings.columns:
-        return rankings[rankings["evidence"].astype(str) != "none"]
-    return rankings
+        return (rankings["evidence"].astype(str) != "none").to_numpy()
+    return np.ones(len(rankings), dtype=bool)
+
+
+def _assessed(rankings: pd.DataFrame) -> pd.DataFrame:
+    return rankings[_has_evidence(rankings)]
 
 
 def _comparison_stat(r: _Run, name: str) -> dict | None:
@@ -963,10 +968,7 @@ def _regions(r: _Run, risk: _RiskRows | None, *, draw_insets: bool) -> list[Regi
         return []
     presence = _present_rows(r.table("regions", "region_taxa.csv"))
     slices = _region_slices(presence, risk) if risk is not None and presence is not None else None
-    if risk is not None and "evidence" in risk.ordered.columns:
-        assessed = (risk.ordered["evidence"].astype(str) != "none").to_numpy()
-    elif risk is not None:
-        assessed = np.ones(len(risk), dtype=bool)
+    assessed = _has_evidence(risk.ordered) if risk is not None else None
     taken: set[str] = set()
     views = []
     rows = summary.to_dict("records")

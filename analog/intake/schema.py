@@ -167,13 +167,19 @@ def clean_text(series: pd.Series, missing_values) -> pd.Series:
     return s.mask(blank) if blank.any() else s
 
 
+def _whole_floats(vals: np.ndarray) -> bool:
+    """Whether a float column holds whole numbers only (its finite values, at least one, within int64):
+    such a column is spelled as integers ('12', not '12.0')."""
+    finite = vals[np.isfinite(vals)]
+    return bool(finite.size and np.all(np.mod(finite, 1) == 0) and np.all(np.abs(finite) < 2.0 ** 63))
+
+
 def _numbers_as_text(series: pd.Series) -> pd.Series:
     # Identifiers stored as numbers (Parquet, GeoPackage): 12.0 -> '12', keep NaN as NA.
     if series.dtype.kind == "f":
         vals = series.to_numpy()
         finite = np.isfinite(vals)
-        if (finite.any() and np.all(np.mod(vals[finite], 1) == 0)
-                and np.all(np.abs(vals[finite]) < 2.0 ** 63)):
+        if _whole_floats(vals):
             out = series.where(finite).astype("Int64").astype("str")
             infinite = np.isinf(vals)
             if infinite.any():  # +-inf keep their float spelling
@@ -347,11 +353,7 @@ def _number_text(raw: pd.Series, mask: np.ndarray) -> pd.Series:
     pos = np.flatnonzero(mask)[:_SHOWN]
     sub = raw.iloc[pos]
     if raw.dtype.kind == "f" and len(pos):
-        vals = raw.to_numpy()
-        finite = np.isfinite(vals)
-        whole = (finite.any() and np.all(np.mod(vals[finite], 1) == 0)
-                 and np.all(np.abs(vals[finite]) < 2.0 ** 63))
-        if whole:
+        if _whole_floats(raw.to_numpy()):
             fin = np.isfinite(sub.to_numpy())
             text = sub.astype("str").to_numpy(dtype=object)
             text[fin] = sub[fin].astype("Int64").astype("str").to_numpy(dtype=object)
