@@ -17,7 +17,7 @@ from analog.errors import AnalogWarning
 from analog.figures.style import TIER_COLOURS
 from analog.pipeline import RunResult
 
-from conftest import ODD_REGION_ID, ODD_REGION_NAME, ODD_TAXON, make_study
+from briefing_inputs import ODD_REGION_ID, ODD_REGION_NAME, ODD_TAXON, make_study
 
 VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
 
